@@ -1,0 +1,1 @@
+"""Example models shipped with symgain."""
