@@ -16,8 +16,9 @@ import sympy as sp
 
 from .check import CheckReport
 from .design import Design, GainDesign
+from .model import S
 
-__all__ = ["format_design", "format_check"]
+__all__ = ["format_design", "format_check", "format_polynomial"]
 
 _ROW_COL = {  # which names label the rows and columns of each part's gain
     "feedback": ("inputs", "states"),
@@ -38,11 +39,34 @@ def _labels(design: Design, part: str, rows: int, cols: int):
     return rl, cl
 
 
+def format_polynomial(poly: sp.Expr, s: sp.Symbol = S) -> str:
+    """A polynomial in s, highest power first, each coefficient collected.
+
+    >>> w = sp.Symbol("w")
+    >>> format_polynomial(sp.expand((S + w)**2 + S))
+    's**2 + (2*w + 1)*s + w**2'
+    """
+    terms = []
+    for (k,), c in sp.Poly(poly, s).terms():
+        c = sp.factor_terms(c)
+        if k == 0:
+            terms.append(sp.sstr(c))
+            continue
+        power = "s" if k == 1 else f"s**{k}"
+        if c == 1:
+            terms.append(power)
+        elif c.is_Add or sp.fraction(c)[1] != 1:
+            terms.append(f"({sp.sstr(c)})*{power}")
+        else:
+            terms.append(f"{sp.sstr(c)}*{power}")
+    return " + ".join(terms).replace("+ -", "- ")
+
+
 def _format_part(design: Design, part: GainDesign) -> list[str]:
     lines = [f"{part.part} gain {part.symbol}"]
     if part.target is not None:
         lines.append(f"  target: {part.target.description}")
-        lines.append(f"  target polynomial: {sp.sstr(part.target.polynomial)}")
+        lines.append(f"  target polynomial: {format_polynomial(part.target.polynomial)}")
     for note in part.notes:
         lines.append(f"  note: {note}")
     rl, cl = _labels(design, part.part, part.gain.rows, part.gain.cols)
