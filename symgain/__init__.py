@@ -24,6 +24,7 @@ Matrix([[m*w**2, 2*m*w]])
 >>> symgain.check_design(design, n_points=5).passed
 True
 """
+from .api import model_from_equations, model_from_matrices
 from .check import CheckReport, check_design
 from .design import Design, GainDesign, derive
 from .emit.json import design_to_dict, design_to_json
@@ -36,6 +37,8 @@ __version__ = "0.1.0"
 __all__ = [
     "load_model",
     "model_from_text",
+    "model_from_matrices",
+    "model_from_equations",
     "derive",
     "check_design",
     "design_to_json",

@@ -20,6 +20,7 @@ symbolic derivation: it is a second opinion, not the same code run twice.
 from __future__ import annotations
 
 import warnings
+import zlib
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -32,7 +33,7 @@ from .model import S, Model
 from .validity import holds_at
 
 __all__ = ["PointResult", "CheckReport", "sample_points", "check_design", "DEFAULT_TOLERANCE",
-           "closed_loop_matrix"]
+           "closed_loop_matrix", "augmented_matrices", "steady_state_error"]
 
 DEFAULT_TOLERANCE = 1e-6
 
@@ -80,16 +81,42 @@ def sample_points(model: Model, n_points: int = 20, seed: int = 0) -> list[dict[
     return points
 
 
-def closed_loop_matrix(part: str, A, B, C, gain, extra=None):
-    """The numeric closed-loop matrix whose poles the part places."""
+def augmented_matrices(A, B, C, D=None):
+    """Numeric plant with one integrator per output: [[A, 0], [C, 0]], [[B], [D]]."""
+    n, m, p = A.shape[0], B.shape[1], C.shape[0]
+    D = np.zeros((p, m)) if D is None else D
+    Aa = np.block([[A, np.zeros((n, p))], [C, np.zeros((p, p))]])
+    return Aa, np.vstack([B, D])
+
+
+def closed_loop_matrix(part: str, A, B, C, gain, extra=None, D=None):
+    """The numeric closed-loop matrix whose poles the part places.
+
+    For "integral", ``gain`` is K and ``extra`` is Ki (u = -K x - Ki q, q' = y - r).
+    """
     if part == "feedback":
         return A - B @ gain
     if part == "estimator":
         return A - gain @ C
+    if part == "integral":
+        Aa, Ba = augmented_matrices(A, B, C, D)
+        return Aa - Ba @ np.hstack([gain, extra])
     raise ValueError(f"no closed-loop rule for part {part!r}")
 
 
-def _reference_gain(part: str, A, B, C, poles):
+def steady_state_error(A, B, C, D, K, N) -> float:
+    """max |G(0) - I| of the closed loop x' = (A - B K) x + B N r, y = (C - D K) x + D N r.
+
+    >>> A = np.array([[0.0, 1.0], [0.0, 0.0]]); B = np.array([[0.0], [1.0]]); C = np.array([[1.0, 0.0]])
+    >>> steady_state_error(A, B, C, None, np.array([[6.0, 5.0]]), np.array([[6.0]])) < 1e-12
+    True
+    """
+    D = np.zeros((C.shape[0], B.shape[1])) if D is None else D
+    dc = -(C - D @ K) @ np.linalg.solve(A - B @ K, B @ N) + D @ N
+    return float(np.max(np.abs(dc - np.eye(dc.shape[0]))))
+
+
+def _reference_gain(part: str, A, B, C, poles, D=None):
     """scipy.signal.place_poles for the same problem."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -97,6 +124,9 @@ def _reference_gain(part: str, A, B, C, poles):
             return scipy.signal.place_poles(A, B, poles, rtol=1e-13, maxiter=200).gain_matrix
         if part == "estimator":
             return scipy.signal.place_poles(A.T, C.T, poles, rtol=1e-13, maxiter=200).gain_matrix.T
+        if part == "integral":
+            Aa, Ba = augmented_matrices(A, B, C, D)
+            return scipy.signal.place_poles(Aa, Ba, poles, rtol=1e-13, maxiter=200).gain_matrix
     return None
 
 
@@ -120,23 +150,45 @@ def _distinct(roots, rel=1e-6) -> bool:
     return True
 
 
-def _evaluator(model: Model, expr):
-    names = [p.symbol for p in model.parameters]
+def _evaluator(model: Model, expr, free=()):
+    names = [p.symbol for p in model.parameters] + list(free)
     return sp.lambdify(names, expr, modules="numpy")
 
 
-def _check_part(model: Model, part: GainDesign, points, tol: float) -> list[PointResult]:
+def _free_values(free, seed: int, idx: int) -> dict:
+    """Values for free gains at one point (uniform in [0.5, 1.5], the same for every part)."""
+    return {g: float(np.random.default_rng([seed, idx, zlib.crc32(str(g).encode())]).uniform(0.5, 1.5))
+            for g in free}
+
+
+def _real(x):
+    x = np.array(x, dtype=complex)
+    if not np.all(np.isfinite(x)) or np.max(np.abs(x.imag), initial=0) > 1e-9 * max(1.0, np.max(np.abs(x))):
+        return None
+    return x.real
+
+
+def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 0,
+                feedback: GainDesign | None = None) -> list[PointResult]:
     order = [p.name for p in model.parameters]
+    free = tuple(part.free_gains)
     f_A, f_B = _evaluator(model, model.A), _evaluator(model, model.B)
     f_C = _evaluator(model, model.C) if model.C is not None else None
-    f_gain = _evaluator(model, part.gain)
-    coeffs = sp.Poly(part.target.polynomial, S).all_coeffs()
-    f_target = _evaluator(model, coeffs)
-    unique = part.gain.rows == 1 or part.gain.cols == 1
+    f_D = _evaluator(model, model.D) if model.D is not None else None
+    full = part.gain
+    if part.part == "integral":
+        full = sp.Matrix.hstack(sp.Matrix(part.gain), sp.Matrix(part.extra["integral_gain"]))
+    f_gain = _evaluator(model, full, free)
+    f_K = _evaluator(model, feedback.gain, free) if part.part == "feedforward" else None
+    f_target = _evaluator(model, sp.Poly(part.target.polynomial, S).all_coeffs()) if part.target else None
+    unique = (full.rows == 1 or full.cols == 1) and not free and "direction" not in part.extra
     results = []
+    n = model.n_states
     for idx, point in enumerate(points):
         args = [point[name] for name in order]
-        values = {p.symbol: point[p.name] for p in model.parameters}
+        fvals = _free_values(free, seed, idx)
+        fargs = args + [fvals[g] for g in free]
+        values = {p.symbol: point[p.name] for p in model.parameters} | fvals
         failed = holds_at(part.valid_when, values)
         if failed:
             results.append(PointResult(idx, point, "skipped", None, None, "fails " + ", ".join(failed)))
@@ -145,19 +197,32 @@ def _check_part(model: Model, part: GainDesign, points, tol: float) -> list[Poin
             A = np.array(f_A(*args), dtype=float)
             B = np.array(f_B(*args), dtype=float)
             C = np.array(f_C(*args), dtype=float) if f_C else None
-            gain = np.array(f_gain(*args), dtype=complex)
-            target = np.array(f_target(*args), dtype=complex)
-        if np.max(np.abs(gain.imag)) > 1e-9 * max(1.0, np.max(np.abs(gain))) or not np.all(np.isfinite(gain)):
+            D = np.array(f_D(*args), dtype=float) if f_D else None
+            gain = _real(f_gain(*fargs))
+            K = _real(f_K(*fargs)) if f_K else None
+        if gain is None or (f_K is not None and K is None):
             results.append(PointResult(idx, point, "fail", None, None, "gain is not finite and real here"))
             continue
-        gain, target = gain.real, target.real
-        closed = closed_loop_matrix(part.part, A, B, C, gain)
+        if part.part == "feedforward":
+            try:
+                err = steady_state_error(A, B, C, D, K, gain)
+            except np.linalg.LinAlgError:
+                err = float("inf")
+            bad = not err <= tol
+            results.append(PointResult(idx, point, "fail" if bad else "ok", None, err,
+                                       f"steady-state gain from r to y differs from I by {err:.1e}" if bad else ""))
+            continue
+        target = np.array(f_target(*args), dtype=complex).real
+        if part.part == "integral":
+            closed = closed_loop_matrix("integral", A, B, C, gain[:, :n], gain[:, n:], D)
+        else:
+            closed = closed_loop_matrix(part.part, A, B, C, gain)
         cl_err = _normalized_error(np.poly(closed), target)
         roots = np.roots(target)
         gain_err = None
         if unique and _distinct(roots):
             try:
-                ref = _reference_gain(part.part, A, B, C, roots)
+                ref = _reference_gain(part.part, A, B, C, roots, D)
             except ValueError:
                 ref = None
             if ref is not None:
@@ -174,7 +239,7 @@ def check_design(design: Design, n_points: int = 20, seed: int = 0,
     points = sample_points(design.model, n_points, seed)
     report = CheckReport(tolerance, seed)
     for part in design.parts():
-        if part.target is None:
+        if part.target is None and part.part != "feedforward":
             continue
-        report.points[part.part] = _check_part(design.model, part, points, tolerance)
+        report.points[part.part] = _check_part(design.model, part, points, tolerance, seed, design.feedback)
     return report

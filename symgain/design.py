@@ -84,6 +84,12 @@ class Design:
         """Every condition of every part, without duplicates."""
         return tuple(dict.fromkeys(c for p in self.parts() for c in p.valid_when))
 
+    def _repr_markdown_(self) -> str:
+        """Jupyter display: gains, targets and conditions (see :mod:`symgain.display`)."""
+        from .display import design_markdown
+
+        return design_markdown(self)
+
 
 def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states) -> str:
     """Left null vectors of the controllability matrix, as combinations of states."""
@@ -113,7 +119,7 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
     det_num, det_den = result.controllability_det
     if det_num == 0:
         raise NotControllableError(
-            f"{part}: the plant is not {word} for any parameter values "
+            f"the plant is not {word} for any parameter values "
             f"(the {'controllability' if word == 'controllable' else 'observability'} matrix is singular)"
             + _unreachable_directions(A, B, states), where=spec.where)
     valid = nonzero_conditions([det_num, *result.gain_denominators])
@@ -137,9 +143,29 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
 
 def derive(model: Model) -> Design:
     """Derive every part the model asks for."""
+    from .estimator import design_estimator
+    from .feedforward import design_feedforward
+    from .integral_action import design_integral
+    from .multi_input import design_several_inputs
+
     avoid = set(model.symbols)
-    feedback = None
+    feedback = estimator = integral = feedforward = None
     if model.feedback is not None:
-        feedback = design_gain(model.A, model.B, model.feedback, part="feedback", symbol="K",
-                               states=model.states, avoid=avoid)
-    return Design(model=model, feedback=feedback)
+        spec = model.feedback
+        if model.pattern is not None and "pattern" not in spec.values:
+            spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
+        if model.n_inputs == 1 and "pattern" not in spec.values:
+            feedback = design_gain(model.A, model.B, spec, part="feedback", symbol="K",
+                                   states=model.states, avoid=avoid)
+        else:
+            feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
+                                             states=model.states, inputs=model.inputs, avoid=avoid,
+                                             symbols=model.symbols)
+    if model.estimator is not None:
+        estimator = design_estimator(model, avoid, feedback)
+    if model.integral is not None:
+        integral = design_integral(model, avoid)
+    if model.feedforward:
+        feedforward = design_feedforward(model, feedback, integral)
+    return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
+                  feedforward=feedforward)

@@ -18,7 +18,7 @@ angle). It is reported and used.
 >>> lin = linearize_plant(plant, symbols, ("theta", "omega"), ("tau",), ("theta",))
 >>> lin.A
 Matrix([
-[  0,            1],
+[  0,           1],
 [g/l, -b/(l**2*m)]])
 >>> lin.B.T, lin.C
 (Matrix([[0, 1/(l**2*m)]]), Matrix([[1, 0]]))
@@ -132,9 +132,10 @@ def linearize_plant(plant: Mapping[str, Any], symbols: Mapping[str, sp.Symbol], 
         if not numerators:
             raise ModelError(f"the equilibrium holds for any {', '.join(solve_for)}: "
                              "no unique value to solve for; give it instead of \"solve\"", where=qw)
+        shown = {**point, **{variables[n]: variables[n] for n in solve_for}}
         if not solutions:
             raise ModelError(f"no value of {', '.join(solve_for)} holds the equilibrium "
-                             f"(right-hand sides there: {_show_residuals(states, f, point)})", where=qw)
+                             f"(right-hand sides there: {_show_residuals(states, f, shown)})", where=qw)
         solutions = [s for s in solutions if all(u in s for u in unknowns)]
         if len(solutions) != 1:
             found = "; ".join(", ".join(f"{n} = {sp.sstr(_simplify(s[u]))}" for n, u in zip(solve_for, unknowns))

@@ -16,10 +16,13 @@ Names map to declared parameters by one rule, :func:`latex_name_to_identifier`:
 drop the backslash of a command name (``\omega`` is ``omega``, ``\ell`` is
 ``ell``), keep the content of ``\mathrm{..}``, ``\mathit{..}`` and
 ``\text{..}``, and drop the braces of a subscript (``m_{p}`` is ``m_p``,
-``k_{\theta}`` is ``k_theta``). A name that maps to nothing declared is an
-error naming it. As in ordinary mathematics, two letters side by side are a
-product (``kx`` is ``k*x``: write ``k_x`` for one name), ``e`` is Euler's
-number and ``\pi`` is pi.
+``k_{\theta}`` is ``k_theta``). A subscript of digits may also match a
+declared name written without the underscore (``\theta_{0}`` is ``theta0``
+when ``theta_0`` is not declared), since that is how sympy itself writes
+``theta0``. A name that maps to nothing declared is an error naming it.
+As in ordinary mathematics, two letters side by side are a product (``kx``
+is ``k*x``: write ``k_x`` for one name), ``e`` is Euler's number and ``\pi``
+is pi.
 
 Before the parser sees anything, every LaTeX command is checked against a
 short list of math commands; commands that would make a TeX engine act
@@ -32,6 +35,7 @@ from __future__ import annotations
 
 import io
 import re
+import warnings
 from contextlib import redirect_stderr, redirect_stdout
 from typing import Mapping
 
@@ -71,6 +75,7 @@ _COMMAND = re.compile(r"\\([A-Za-z]+|.)")
 _SPACING = {",", ";", ":", "!", " ", "\\", "{", "}", "%"}
 _REFUSED_SPACING = {"%"}  # a comment would hide the rest of a line from the reader
 _WRAPPERS = ("mathrm", "mathit", "text")
+_DIGIT_SUBSCRIPT = re.compile(r"_(\d+)$")
 _FUNCTION_CLASSES = {type(f(sp.Symbol("x"))): name for name, f in ALLOWED_FUNCTIONS.items()
                      if name != "sqrt"}
 
@@ -159,6 +164,15 @@ def _cells(text: str, where: Where | None) -> list[list[str]]:
     if "\\begin" in body or "\\end" in body:
         raise ModelError("nested environments are not supported in a LaTeX matrix", where=where)
     body = re.sub(r"\\\\\s*\[[^\]]*\]", r"\\\\", body)  # row spacing such as \\[2pt]
+    for i, row in enumerate(body.split("\\\\")):
+        depth = 0
+        for ch in re.sub(r"\\[{}]", "", row):
+            depth += {"{": 1, "}": -1}.get(ch, 0)
+            if depth < 0:
+                break
+        if depth:
+            raise ModelError(f"unbalanced braces in row {i} of the LaTeX matrix: {_quote(row.strip())}",
+                             where=where)
     rows = [row for row in _split_top(body, "\\\\")]
     while rows and not rows[-1].strip():
         rows.pop()  # a trailing \\ ends the last row
@@ -177,7 +191,9 @@ def _cells(text: str, where: Where | None) -> list[list[str]]:
 
 
 def _latex2sympy(text: str):
-    from latex2sympy2 import latex2sympy
+    with warnings.catch_warnings():  # the parser's runtime imports deprecated typing.io
+        warnings.simplefilter("ignore", DeprecationWarning)
+        from latex2sympy2 import latex2sympy
 
     sink = io.StringIO()
     with redirect_stdout(sink), redirect_stderr(sink):
@@ -255,6 +271,9 @@ def _rebuild(value, symbols: Mapping[str, sp.Symbol], cell: str, where: Where) -
             return e
         if isinstance(e, sp.Symbol):
             identifier = latex_name_to_identifier(e.name)
+            if identifier not in symbols:  # theta0 is written \theta_{0} (sympy does so too)
+                joined = _DIGIT_SUBSCRIPT.sub(r"\1", identifier)
+                identifier = joined if joined in symbols else identifier
             if identifier not in symbols:
                 fail(f"LaTeX name {_quote(_latex_form(e.name))} (read as {_quote(identifier)}) "
                      "is not a declared parameter")

@@ -205,3 +205,9 @@ class Model:
     def nominal_values(self) -> dict[str, float]:
         """Nominal value of every parameter that has one."""
         return {p.name: p.nominal for p in self.parameters if p.nominal is not None}
+
+    def _repr_markdown_(self) -> str:
+        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.display`)."""
+        from .display import model_markdown
+
+        return model_markdown(self)

@@ -56,7 +56,7 @@ TARGET_KEYS = {
     "damping": ("damping", "natural_frequency"),
     "settling": ("settling_time", "overshoot"),
 }
-OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "z_poles"}
+OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "z_poles", "input_direction", "output_direction"}
 
 
 def load_model(path: str | Path) -> Model:
@@ -146,8 +146,9 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
         if kind not in ("damping", "settling"):
             raise ModelError("extra_poles goes with damping or settling_time targets", where=where)
         values["extra_poles"] = _expr_list(table["extra_poles"], symbols, where.child("extra_poles"))
-    if "pattern" in table:
-        values["pattern"] = table["pattern"]
+    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.multi_input
+        if key in table:
+            values[key] = table[key]
     if kind == "prototype":
         from .prototypes import PROTOTYPES
 

@@ -7,7 +7,7 @@
 s**2 + 2*s*w + w**2
 >>> t = resolve_target(TargetSpec("damping", {"damping": sp.Rational(1, 2), "natural_frequency": w}), 3)
 >>> sp.factor(t.polynomial)
-(s + 5*w/2)*(s**2 + s*w + w**2)
+(2*s + 5*w)*(s**2 + s*w + w**2)/2
 >>> t.notes[0]
 'extra pole at 5 times the dominant real part (rule of thumb)'
 """

@@ -1,7 +1,7 @@
 """The command line: a thin shell that parses arguments, calls the library, prints, exits.
 
 Exit codes: 0 ok, 1 a check failed, 2 bad input (one line on stderr; the
-traceback only with --debug). Each command lives in its own module of this
+traceback only with --debug), 3 an internal error (a bug: please report it). Each command lives in its own module of this
 package and registers itself through ``add_to(subparsers)``.
 """
 from __future__ import annotations
@@ -15,7 +15,7 @@ from ..errors import SymgainError
 __all__ = ["main", "COMMAND_MODULES"]
 
 # one module per command group; each defines add_to(subparsers)
-COMMAND_MODULES = ["symgain.cli.core"]
+COMMAND_MODULES = ["symgain.cli.core", "symgain.cli.emit", "symgain.cli.sweep"]
 
 EPILOG = """examples:
   symgain demo
@@ -53,6 +53,12 @@ def main(argv: list[str] | None = None) -> int:
             raise
         print(f"symgain: {exc}", file=sys.stderr)
         return 2
+    except Exception as exc:  # a bug of ours, not the user's input
+        if args.debug:
+            raise
+        print(f"symgain: internal error ({type(exc).__name__}: {exc}); please report it with the "
+              "model file; rerun with --debug for the traceback", file=sys.stderr)
+        return 3
     except KeyboardInterrupt:  # pragma: no cover
         print("symgain: interrupted", file=sys.stderr)
         return 130

@@ -1,1 +1,59 @@
-"""Emitters: one module per output language, each reading a :class:`~symgain.design.Design`."""
+"""Emitters: one module per output language, each reading a :class:`~symgain.design.Design`.
+
+:func:`emit` renders every requested target in memory first and only then
+writes the files (each atomically), so a failure while rendering leaves no
+output at all.
+
+>>> import sympy as sp, tempfile
+>>> from symgain.model import Model, Parameter, TargetSpec
+>>> from symgain.design import derive
+>>> m = Parameter.declare("m", sign="positive", range=(1, 2))
+>>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
+>>> [p.name for p in emit(derive(model), ["python", "c", "json"], tempfile.mkdtemp())]
+['cart.py', 'cart.h', 'cart.c', 'cart.json']
+"""
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from ..design import Design
+from ..errors import OutputError
+
+__all__ = ["emit", "render", "TARGETS"]
+
+TARGETS = ("python", "c", "latex", "json")
+_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+
+
+def render(design: Design, targets, name: str | None = None, precision: str = "double") -> dict[str, str]:
+    """File name -> text for each target (nothing is written)."""
+    name = name or design.model.name
+    if not _IDENTIFIER.match(name):
+        raise OutputError(f"name {name!r} must be an identifier (it names files, module and C functions)")
+    texts: dict[str, str] = {}
+    for target in dict.fromkeys(targets):
+        if target == "python":
+            from .python import python_module
+            texts[f"{name}.py"] = python_module(design)
+        elif target == "c":
+            from .c import c_files
+            texts[f"{name}.h"], texts[f"{name}.c"] = c_files(design, name, precision)
+        elif target == "latex":
+            from .latex import latex_report
+            texts[f"{name}.tex"] = latex_report(design)
+        elif target == "json":
+            from .json import design_to_json
+            texts[f"{name}.json"] = design_to_json(design) + "\n"
+        else:
+            raise OutputError(f"unknown target {target!r}; choose from {', '.join(TARGETS)}")
+    return texts
+
+
+def emit(design: Design, targets, out_dir=".", name: str | None = None,
+         precision: str = "double") -> list[Path]:
+    """Write the design as the given targets into ``out_dir``; the written paths."""
+    from .files import write_files
+    return write_files(out_dir, render(design, targets, name, precision))

@@ -9,6 +9,8 @@
 ...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
 >>> design_to_dict(derive(model))["feedback"]["gain"]
 [['m', '2*m']]
+>>> design_to_dict(derive(model))["feedback"]["sensitivity"]  # dK/dm, one matrix per parameter
+{'m': [['1', '2']]}
 """
 from __future__ import annotations
 
@@ -17,6 +19,7 @@ import json
 import sympy as sp
 
 from ..design import Design, GainDesign
+from ..sensitivity import sensitivity_matrices
 
 __all__ = ["design_to_dict", "design_to_json"]
 
@@ -25,7 +28,7 @@ def _matrix(mat) -> list[list[str]]:
     return [[sp.sstr(e) for e in mat.row(i)] for i in range(mat.rows)]
 
 
-def _part(part: GainDesign) -> dict:
+def _part(part: GainDesign, sensitivity: dict | None = None) -> dict:
     out = {"gain": _matrix(part.gain), "valid_when": [sp.sstr(c) for c in part.valid_when]}
     for key, value in part.extra.items():
         if key == "gain_symbols":
@@ -42,6 +45,8 @@ def _part(part: GainDesign) -> dict:
         out["free_gains"] = [str(s) for s in part.free_gains]
     if part.notes:
         out["notes"] = list(part.notes)
+    if sensitivity is not None:
+        out["sensitivity"] = {name: _matrix(mat) for name, mat in sensitivity.items()}
     return out
 
 
@@ -56,8 +61,9 @@ def design_to_dict(design: Design) -> dict:
         "inputs": list(model.inputs),
         "outputs": list(model.outputs),
     }
+    sensitivity = sensitivity_matrices(design)
     for part in design.parts():
-        out[part.part] = _part(part)
+        out[part.part] = _part(part, sensitivity.get(part.part))
     return out
 
 

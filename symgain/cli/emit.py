@@ -1,0 +1,40 @@
+"""Command emit: write a derived design as Python, C, LaTeX or JSON files."""
+from __future__ import annotations
+
+import argparse
+
+from ..design import derive
+from ..emit import TARGETS, emit
+from ..model_file import load_model
+
+EPILOG = """examples:
+  symgain emit examples/greenhouse_cart.toml --to python --to c -o build
+  symgain emit examples/greenhouse_cart.toml --to c --precision single --name cart
+  symgain emit examples/greenhouse_cart.toml --to latex -o report
+
+files: NAME.py (numpy only), NAME.h + NAME.c (C99), NAME.tex (pdflatex), NAME.json;
+NAME is the model's name unless --name is given. Each file is written whole or not at all.
+"""
+
+
+def add_to(sub) -> None:
+    p = sub.add_parser("emit", help="write the gain formulas as Python, C, LaTeX or JSON files",
+                       formatter_class=argparse.RawDescriptionHelpFormatter, epilog=EPILOG,
+                       description="Derive the design of a model file and write it in one or more "
+                       "target languages.")
+    p.add_argument("model", help="model file (TOML)")
+    p.add_argument("--to", action="append", choices=TARGETS, required=True, metavar="TARGET",
+                   help=f"target language, repeatable: {', '.join(TARGETS)}")
+    p.add_argument("-o", "--out", default=".", metavar="DIR", help="output folder (default: current)")
+    p.add_argument("--name", metavar="PREFIX",
+                   help="file name, Python module and C prefix (default: the model's name)")
+    p.add_argument("--precision", choices=("double", "single"), default="double",
+                   help="C floating-point type: double (default) or single (float)")
+    p.set_defaults(run=run_emit)
+
+
+def run_emit(args) -> int:
+    design = derive(load_model(args.model))
+    for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
+        print(path)
+    return 0

@@ -1,0 +1,232 @@
+"""Commands schedule, robust, sensitivity and plot: gains over ranges of parameters."""
+from __future__ import annotations
+
+import argparse
+import sys
+from contextlib import contextmanager
+
+import numpy as np
+import sympy as sp
+
+from ..design import derive
+from ..errors import ModelError
+from ..model_file import load_model
+
+_FMT = argparse.RawDescriptionHelpFormatter
+
+
+def _common(p, model_help="model file (TOML)"):
+    p.add_argument("model", help=model_help)
+    p.add_argument("-o", "--output", metavar="DIR", default=None,
+                   help="output folder (default ./symgain-out/<model name>)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar and only the essential lines")
+
+
+def add_to(sub) -> None:
+    p = sub.add_parser("schedule", help="tabulate the gains over a grid of one or two parameters",
+                       formatter_class=_FMT,
+                       description="Evaluate every designed gain over a grid (other parameters at nominal) "
+                       "and write a CSV table, a C lookup table with linear or bilinear interpolation "
+                       "and a plot. Grid points where a validity condition fails are marked invalid.",
+                       epilog="examples:\n  symgain schedule examples/greenhouse_cart.toml --over m=15:90:16\n"
+                       "  symgain schedule examples/greenhouse_cart.toml --over m=15:90:16 --over c=0:12:4")
+    _common(p)
+    p.add_argument("--over", action="append", metavar="NAME=LOW:HIGH:COUNT", required=True,
+                   help="a scheduled parameter; give it once or twice (NAME alone: declared range, 11 points)")
+    p.set_defaults(run=run_schedule)
+
+    p = sub.add_parser("robust", help="stability when the plant's parameters differ from the controller's",
+                       formatter_class=_FMT,
+                       description="Design with estimated values (NAME_hat), keep the true ones in the plant, "
+                       "derive the Routh-Hurwitz conditions in closed form, report the stable range of the "
+                       "ratio true/estimate, cross-check with eigenvalues and plot the pole migration. "
+                       "Exit code 1 when an eigenvalue check disagrees with the conditions.",
+                       epilog="example:\n  symgain robust symgain/data/demo_conveyor.toml --mismatch m tau")
+    _common(p)
+    p.add_argument("--mismatch", nargs="+", metavar="NAME", required=True,
+                   help="plant parameters whose true value differs from the one the controller assumes")
+    p.add_argument("--points", type=int, default=300, metavar="N",
+                   help="sampled points for the eigenvalue cross-check (default 300)")
+    p.add_argument("--seed", type=int, default=0, help="random seed of the cross-check (default 0)")
+    p.set_defaults(run=run_robust)
+
+    p = sub.add_parser("sensitivity", help="partial derivatives of the gains and relative sensitivities",
+                       formatter_class=_FMT,
+                       description="Print (p/K) dK/dp at nominal values for every gain and parameter: the "
+                       "percent change of the gain per percent change of the parameter. With --formulas, "
+                       "also the partial derivatives in closed form.",
+                       epilog="example:\n  symgain sensitivity examples/greenhouse_cart.toml --formulas")
+    p.add_argument("model", help="model file (TOML)")
+    p.add_argument("--formulas", action="store_true", help="also print dK/dp in closed form")
+    p.set_defaults(run=run_sensitivity)
+
+    p = sub.add_parser("plot", help="draw closed-loop figures (step responses)", formatter_class=_FMT,
+                       description="Draw the closed-loop step response at nominal values and at the corners "
+                       "of the plant parameters' ranges (scipy.signal), one PNG.",
+                       epilog="example:\n  symgain plot symgain/data/demo_conveyor.toml --step")
+    _common(p)
+    p.add_argument("--step", action="store_true", help="step responses at nominal and at the corners")
+    p.add_argument("--gains", choices=("fixed", "scheduled"), default="fixed",
+                   help="fixed: controller at nominal values (default); scheduled: formulas at each corner")
+    p.set_defaults(run=run_plot)
+
+
+@contextmanager
+def _progress(total: int, label: str, quiet: bool):
+    """A tqdm bar on stderr that appears only when the work takes more than a second."""
+    from tqdm import tqdm
+
+    bar = tqdm(total=total, desc=label, delay=1.0, disable=quiet, file=sys.stderr, leave=False,
+               unit="pt", dynamic_ncols=True)
+    try:
+        yield bar.update
+    finally:
+        bar.close()
+
+
+def _folder(args, model):
+    from ..sweep.output import default_folder, prepare_folder
+
+    return prepare_folder(args.output or default_folder(model.name))
+
+
+def run_schedule(args) -> int:
+    from ..plots import png_bytes, schedule_figure
+    from ..sweep.evaluate import GainEvaluator
+    from ..sweep.lookup_c import interpolation_errors, lookup_table_c, REFINE
+    from ..sweep.output import write_atomic
+    from ..sweep.schedule import compute_schedule, parse_axis, schedule_csv
+
+    model = load_model(args.model)
+    axes = [parse_axis(text, model) for text in args.over]
+    if len(axes) > 2:
+        raise ModelError(f"--over is given {len(axes)} times; a schedule runs over one or two parameters")
+    design = derive(model)
+    evaluator = GainEvaluator(design)
+    folder = _folder(args, model)
+    total = int(np.prod([a.values.size for a in axes]))
+    with _progress(total, "gains", args.quiet) as tick:
+        schedule = compute_schedule(design, axes, evaluator=evaluator, progress=tick)
+    errors = interpolation_errors(schedule, evaluator=evaluator)
+    base = f"{model.name}-schedule"
+    written = [write_atomic(folder / f"{base}.csv", schedule_csv(schedule)),
+               write_atomic(folder / f"{model.name}_schedule.c", lookup_table_c(schedule, errors)),
+               write_atomic(folder / f"{base}.png", png_bytes(schedule_figure(schedule)))]
+    invalid = int((~schedule.valid).sum())
+    grid = " x ".join(f"{a.name} {a.values[0]:g}..{a.values[-1]:g} ({a.values.size})" for a in axes)
+    print(f"schedule of {len(schedule.entries)} gains over {grid}: {schedule.valid.size} points, "
+          f"{invalid} invalid")
+    if not args.quiet:
+        print(f"worst interpolation error (grid {REFINE} times finer, absolute / relative to max |gain|):")
+        for e in schedule.entries:
+            err = errors[e.identifier]
+            print(f"  {e.label:<20} {err.absolute:.3e} / {err.relative:.3e}")
+    for path in written:
+        print(f"wrote {path}")
+    return 0
+
+
+def _interval_text(lo: float, hi: float) -> str:
+    return f"({lo:.6g}, {'inf' if not np.isfinite(hi) else f'{hi:.6g}'})"
+
+
+def run_robust(args) -> int:
+    from ..plots import png_bytes, pole_migration_figure
+    from ..robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
+    from ..sweep.output import write_atomic
+
+    model = load_model(args.model)
+    design = derive(model)
+    analysis = analyze_mismatch(design, list(dict.fromkeys(args.mismatch)))
+    folder = _folder(args, model)
+    with _progress(None, "grid scan", args.quiet) as tick:
+        ranges = ratio_ranges(analysis, progress=tick)
+    with _progress(args.points, "eigenvalue check", args.quiet) as tick:
+        counts = cross_check(analysis, n_points=args.points, seed=args.seed, progress=tick)
+    nominal = model.nominal_values()
+    sweeps = {name: pole_migration(design, name) for name in analysis.mismatched
+              if model.parameter(name).range is not None}
+    path = None
+    if sweeps:
+        poles0 = np.linalg.eigvals(ClosedLoop(design)(nominal, nominal))
+        path = write_atomic(folder / f"{model.name}-poles.png",
+                            png_bytes(pole_migration_figure(model, sweeps, poles0)))
+    ratio_words = ", ".join(f"{analysis.ratios[n]} = {n}/{analysis.hats[n]}" for n in analysis.mismatched)
+    print(f"{model.name}: controller designed with {', '.join(map(str, analysis.hats.values()))}; "
+          f"the plant has the true values ({ratio_words})")
+    if not args.quiet:
+        print(f"closed-loop characteristic polynomial (scaled by a positive factor):\n  "
+              f"{sp.sstr(sp.collect(analysis.closed_loop_polynomial, sp.Symbol('s')))}")
+        print("Routh-Hurwitz conditions, each > 0 (conditions the signs already guarantee are left out):")
+        for cond in analysis.conditions or ["(none: stable for every positive ratio)"]:
+            print(f"  {sp.sstr(cond)}")
+    for name, rr in ranges.items():
+        unit = model.parameter(name).unit
+        print(f"{name} (controller assumes {nominal[name]:g} {unit}; other values at nominal):")
+        if rr.exact is not None:
+            print(f"  stable ratio {name}/{name}_hat, exact: {sp.sstr(rr.exact)}")
+        print("  stable ratio, numerically: " + (" U ".join(_interval_text(*i) for i in rr.intervals) or "none"))
+        if rr.declared is not None:
+            verdict = "stable throughout" if rr.declared_stable else "NOT stable throughout"
+            print(f"  true {name} over its declared range gives ratio {_interval_text(*rr.declared)[1:-1]}:"
+                  f" {verdict}")
+        if rr.over_ranges is not None:
+            print(f"  stable ratio at every one of {rr.grid_points} grid points over the declared ranges "
+                  f"(estimate {name}_hat included): {_interval_text(*rr.over_ranges)}")
+        else:
+            print(f"  some of the {rr.grid_points} grid points over the declared ranges are unstable even "
+                  "with a matched controller")
+    print(f"eigenvalue cross-check at {counts['points']} sampled points (ratios 0.05..20): "
+          f"{counts['agree']} agree, {counts['disagree']} disagree, {counts['marginal']} on the boundary")
+    if path:
+        print(f"wrote {path}")
+    return 1 if counts["disagree"] else 0
+
+
+def run_sensitivity(args) -> int:
+    from ..sensitivity import relative_sensitivities, sensitivity_table
+    from ..sweep.evaluate import gain_entries
+
+    model = load_model(args.model)
+    design = derive(model)
+    table = sensitivity_table(design)
+    rel = relative_sensitivities(design, table=table)
+    names = [p.name for p in model.parameters]
+    print(f"{model.name}: relative sensitivity (p/K) dK/dp at nominal "
+          + ", ".join(f"{k} = {v:g}" for k, v in model.nominal_values().items()))
+    entries = [e for e in gain_entries(design) if e.symbol == getattr(design, e.part).symbol]
+    header = ["gain", *names]
+    rows = [[e.label] + [f"{rel[e.part][(e.row, e.col, n)]:+.3f}" for n in names] for e in entries]
+    widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
+    for r in [header, *rows]:
+        print("  " + "  ".join(c.rjust(w) if i else c.ljust(w) for i, (c, w) in enumerate(zip(r, widths))))
+    print("(+1.000: the gain grows in proportion to the parameter; nan: the gain is zero there)")
+    if args.formulas:
+        print("partial derivatives in closed form:")
+        for e in entries:
+            for n in names:
+                d = table[e.part][(e.row, e.col, n)]
+                if d != 0:
+                    print(f"  d {e.label} / d {n} = {sp.sstr(d)}")
+    return 0
+
+
+def run_plot(args) -> int:
+    from ..plots import png_bytes, step_figure
+    from ..sweep.output import write_atomic
+    from ..sweep.step import corner_points, step_responses
+
+    if not args.step:
+        raise ModelError("choose a figure to draw: --step")
+    model = load_model(args.model)
+    design = derive(model)
+    folder = _folder(args, model)
+    with _progress(len(corner_points(design)), "step responses", args.quiet) as tick:
+        runs = step_responses(design, gains=args.gains, progress=tick)
+    output = model.outputs[0] if model.outputs else model.states[0]
+    path = write_atomic(folder / f"{model.name}-step.png", png_bytes(step_figure(model, runs, output, args.gains)))
+    unstable = [r.label for r in runs if not r.stable]
+    print(f"{len(runs)} step responses (nominal and {len(runs) - 1} corners), "
+          f"{len(unstable)} unstable" + (": " + "; ".join(unstable) if unstable else ""))
+    print(f"wrote {path}")
+    return 0

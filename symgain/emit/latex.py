@@ -1,0 +1,250 @@
+r"""LaTeX emitter: a standalone report that a reviewer can read and sign.
+
+Sections: the plant with its parameter table, then for each designed part
+the target and where it comes from and the derivation step by step (read
+generically from ``part.steps``; the coefficient equations are set with the
+power of ``s`` they match), the validity conditions, the numeric cross-check
+table (:func:`symgain.check.check_design`), the safety caution and a sign-off
+block. Needs only amsmath and amssymb, and geometry (all in
+Debian's texlive-latex-base).
+
+Every formula sits on one source line that ends with a comment ``%@ KEY``
+naming what it shows (``plant.A``, ``feedback.solution[0][1]``,
+``feedback.coefficient_equations[2]``, ``feedback.valid_when[0]``), so tools
+and tests can read each one back.
+
+>>> import sympy as sp
+>>> from symgain.model import Model, Parameter, TargetSpec
+>>> from symgain.design import derive
+>>> m = Parameter.declare("m_c", sign="positive", range=(1, 2), unit="kg", meaning="cart mass")
+>>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
+>>> report = latex_report(derive(model))
+>>> [line for line in report.splitlines() if line.endswith("%@ feedback.solution[0][1]")]
+['k_{2} &= 2 m_{c} %@ feedback.solution[0][1]']
+"""
+from __future__ import annotations
+
+import sympy as sp
+
+from ..check import check_design
+from ..design import Design, GainDesign, Step
+from .latex_layout import equation_lines, formula_lines, matrix_tex, tex, text
+
+__all__ = ["latex_report", "CAUTION"]
+
+CAUTION = ("These gains come from a linear model and hold only under the conditions listed above. "
+           "Before use on a machine, validate them in simulation (including actuator limits, delays "
+           "and the nonlinear plant) and commission them on the machine with safe limits, reduced "
+           "power and an emergency stop at hand. The numeric cross-check confirms the algebra, not "
+           "the model.")
+
+_LHS = {  # left-hand sides of well-known steps
+    "closed_loop_matrix": r"A_{\mathrm{cl}}",
+    "open_loop_polynomial": r"\det(sI - A)",
+    "characteristic_polynomial": r"p_{\mathrm{cl}}(s)",
+    "target_polynomial": r"p_{\mathrm{t}}(s)",
+    "controllability_determinant": r"\Delta",
+}
+_SIGN = {"positive": "$> 0$", "nonnegative": r"$\geq 0$", "nonzero": r"$\neq 0$", "real": "any real"}
+_PART_TITLES = {"feedback": "State feedback", "estimator": "State estimator",
+                "integral": "Integral action", "feedforward": "Reference feedforward"}
+_ROLE_NAMES = {"feedback": ("inputs", "states"), "estimator": ("states", "outputs"),
+               "integral": ("inputs", "outputs"), "feedforward": ("inputs", "outputs")}
+
+PREAMBLE = r"""\documentclass[10pt,a4paper]{article}
+\usepackage[margin=2cm]{geometry}
+\usepackage{amsmath,amssymb}
+\allowdisplaybreaks
+\setlength{\parindent}{0pt}
+\setlength{\parskip}{0.5em}
+"""
+
+
+def _display(rows: list[tuple[str, list[str]]]) -> list[str]:
+    """An ``align*`` block: each formula (its lines) on one source line with its key."""
+    out = [r"\begin{align*}"]
+    for k, (key, lines) in enumerate(rows):
+        end = r" \\" if k < len(rows) - 1 else ""
+        out.append(r" \\ ".join(lines) + end + f" %@ {key}")
+    return out + [r"\end{align*}"]
+
+
+def _matrix_block(name: str, mat, key: str, entry_names=None) -> list[str]:
+    """A matrix as one ``bmatrix``, or entry by entry when it would be too wide."""
+    shown = matrix_tex(mat)
+    if shown is not None:
+        return _display([(key, [f"{name} &= {shown}"])])
+    rows = []
+    for i in range(mat.rows):
+        for j in range(mat.cols):
+            if mat[i, j] == 0:
+                continue
+            lhs = entry_names[i][j] if entry_names else f"{name}_{{{i + 1},{j + 1}}}"
+            rows.append((f"{key}[{i}][{j}]", formula_lines(lhs, mat[i, j])))
+    zeros = "" if all(e != 0 for e in mat) else " (entries not listed are zero)"
+    head = [f"${name}$ is {mat.rows}$\\times${mat.cols}; its entries{zeros}:"]
+    return head + (_display(rows) if rows else [])
+
+
+def _parameter_table(design: Design) -> list[str]:
+    out = [r"\begin{center}", r"\begin{tabular}{lllll}", r"\hline",
+           r"symbol & meaning & unit & sign & range (nominal) \\ \hline"]
+    for p in design.model.parameters:
+        rng = f"[{p.range[0]:g}, {p.range[1]:g}]" if p.range else "none"
+        nominal = f" ({p.nominal:g})" if p.nominal is not None else ""
+        role = " (design knob)" if p.role == "design" else ""
+        out.append(f"${tex(p.symbol)}$ & {text(p.meaning) or '--'}{role} & {text(p.unit) or '--'} & "
+                   f"{_SIGN.get(p.sign, text(p.sign))} & {rng}{nominal} \\\\")
+    return out + [r"\hline", r"\end{tabular}", r"\end{center}"]
+
+
+def _plant(design: Design) -> list[str]:
+    model = design.model
+    out = [r"\section{Plant}", text(model.title) + ("." if model.title else ""),
+           f"States ${', '.join(tex(sp.Symbol(s)) for s in model.states)}$; "
+           f"inputs ${', '.join(tex(sp.Symbol(u)) for u in model.inputs)}$"
+           + (f"; outputs ${', '.join(tex(sp.Symbol(y)) for y in model.outputs)}$" if model.outputs else "")
+           + r". The plant is $\dot x = A x + B u$" + (", $y = C x$" if model.C is not None else "")
+           + ", with the parameters below." + (f" Source: \\texttt{{{text(model.source)}}}." if model.source else "")]
+    out += _parameter_table(design)
+    mats = [(n, getattr(model, n)) for n in ("A", "B", "C", "D") if getattr(model, n) is not None]
+    shown = [(n, matrix_tex(m)) for n, m in mats]
+    if all(code is not None for _, code in shown):  # all fit: one display
+        out += _display([(f"plant.{n}", [f"{n} &= {code}"]) for n, code in shown])
+    else:
+        for name, mat in mats:
+            out += _matrix_block(name, mat, f"plant.{name}")
+    for note in model.notes:
+        out.append(text(note))
+    return out
+
+
+def _target(part: GainDesign) -> list[str]:
+    if part.target is None:
+        return []
+    out = [r"\subsection{Target}", f"Target: {text(part.target.description)}."]
+    for note in part.notes:
+        out.append(text(note) + ".")
+    if part.target.poles:
+        rows = [(f"{part.part}.target_poles[{k}]", [f"s_{{{k + 1}}} &= {tex(p)}"])
+                for k, p in enumerate(part.target.poles)]
+        out += ["Target poles:"] + _display(rows)
+    return out
+
+
+def _gain_names(part: GainDesign, mat):
+    symbols = part.extra.get("gain_symbols")
+    if isinstance(symbols, sp.MatrixBase) and symbols.shape == mat.shape:
+        return [[tex(symbols[i, j]) for j in range(mat.cols)] for i in range(mat.rows)]
+    return [[f"{part.symbol}_{{{i + 1},{j + 1}}}" for j in range(mat.cols)] for i in range(mat.rows)]
+
+
+def _step(part: GainDesign, step: Step) -> list[str]:
+    key = f"{part.part}.{step.name}"
+    title = step.title if step.title.startswith("det") else step.title[:1].upper() + step.title[1:]
+    out = [r"\subsection{" + text(title) + "}"]
+    value = step.value
+    if step.name == "solution" and isinstance(value, sp.MatrixBase):
+        names = _gain_names(part, value)
+        rows = [(f"{key}[{i}][{j}]", formula_lines(names[i][j], value[i, j]))
+                for i in range(value.rows) for j in range(value.cols)]
+        return out + _display(rows)
+    if isinstance(value, sp.MatrixBase):
+        return out + _matrix_block(_LHS.get(step.name, part.symbol), value, key)
+    if isinstance(value, tuple):
+        if not value:
+            return out + ["None: the declared signs of the parameters rule out every singular case."]
+        rows = []
+        for k, item in enumerate(value):
+            if isinstance(item, sp.Eq):
+                label = f"s^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""
+                rows.append((f"{key}[{k}]", equation_lines(item.lhs, item.rhs, label)))
+            elif isinstance(item, sp.Ne):
+                rows.append((f"{key}[{k}]", formula_lines(tex(item.lhs), item.rhs, r"\neq")))
+            else:
+                rows.append((f"{key}[{k}]", formula_lines("", item, "")))
+        intro = {"coefficient_equations": "Closed-loop coefficient (left) against target coefficient "
+                 "(right), power by power of $s$:",
+                 "valid_when": "The formulas hold when:"}.get(step.name, "")
+        return out + ([intro] if intro else []) + _display(rows)
+    if isinstance(value, sp.Basic):
+        lhs = _LHS.get(step.name, r"\mathrm{value}")
+        return out + _display([(key, formula_lines(lhs, value))])
+    return out + [text(value)]
+
+
+def _extras(part: GainDesign) -> list[str]:
+    out = []
+    for name, value in part.extra.items():
+        if name == "gain_symbols" or not isinstance(value, sp.MatrixBase):
+            continue
+        out += [r"\subsection{" + text(name.replace("_", " ").capitalize()) + "}"]
+        out += _matrix_block(r"\mathrm{" + name.replace("_", r"\_") + "}", value, f"{part.part}.extra.{name}")
+    return out
+
+
+def _part(design: Design, part: GainDesign) -> list[str]:
+    title = _PART_TITLES.get(part.part, part.part.capitalize())
+    out = [r"\section{" + f"{title}: gain ${part.symbol}$" + "}"]
+    rows, cols = _ROLE_NAMES.get(part.part, (None, None))
+    out.append(f"${part.symbol}$ is {part.gain.rows}$\\times${part.gain.cols}"
+               + (f" (rows: {rows}, columns: {cols})" if rows else "") + ".")
+    out += _target(part)
+    for step in part.steps:
+        out += _step(part, step)
+    out += _extras(part)
+    if part.free_gains:
+        out.append("Free gains left undetermined by the target: $"
+                   + ", ".join(tex(s) for s in part.free_gains) + "$.")
+    return out
+
+
+def _check(design: Design, n_points: int, seed: int) -> list[str]:
+    report = check_design(design, n_points=n_points, seed=seed)
+    names = [p for p in design.model.parameters]
+    out = [r"\section{Numeric cross-check}",
+           f"At {n_points} parameter points (the nominal point, then uniform samples in the declared "
+           f"ranges, seed {seed}) the formulas were evaluated and compared with "
+           r"\texttt{scipy.signal.place\_poles} (gain error, where the poles are distinct and the gain "
+           "unique) and with the target polynomial (closed-loop error: coefficients of the numeric "
+           f"closed loop against the target's, with $s$ scaled by the size of the target roots). "
+           f"Tolerance {report.tolerance:g}."]
+    for part, points in report.points.items():
+        cols = "r" * (len(names) + 3) + "l"
+        size = r"\footnotesize" if len(names) > 5 else r"\small"
+        out += [r"\subsection{" + text(part.capitalize()) + "}", "{" + size,
+                r"\begin{center}", r"\begin{tabular}{" + cols + "}", r"\hline",
+                "point & " + " & ".join(f"${tex(p.symbol)}$" for p in names)
+                + r" & gain error & closed-loop error & result \\ \hline"]
+        for pt in points:
+            label = "nominal" if pt.index == 0 else str(pt.index)
+            vals = " & ".join(f"{pt.values[p.name]:.4g}" for p in names)
+            err = [("--" if e is None else f"{e:.1e}") for e in (pt.gain_error, pt.closed_loop_error)]
+            out.append(f"{label} & {vals} & {err[0]} & {err[1]} & {text(pt.status)} \\\\")
+        counts = report.counts(part)
+        out += [r"\hline", r"\end{tabular}", r"\end{center}", "}",
+                f"{counts['ok']} ok, {counts['fail']} failed, {counts['skipped']} skipped "
+                "(skipped: a validity condition fails at that point)."]
+    return out
+
+
+def latex_report(design: Design, n_points: int = 10, seed: int = 0) -> str:
+    """The full report as LaTeX source (compiles with pdflatex and texlive-latex-base)."""
+    model = design.model
+    title = text(model.title or model.name)
+    out = [PREAMBLE, r"\title{Gain design report: " + title + "}",
+           r"\author{Model \texttt{" + text(model.name) + r"}, derived in closed form by symgain}",
+           r"\date{}", r"\begin{document}", r"\maketitle",
+           "This report derives the gains as formulas in the plant's physical parameters, states "
+           "where they hold, and checks them numerically. Symbols in formulas are the parameters "
+           "of the table in Section 1; $k_i$ and similar are the unknown gains before the solution."]
+    out += _plant(design)
+    for part in design.parts():
+        out += _part(design, part)
+    out += _check(design, n_points, seed)
+    out += [r"\section{Safety caution}", text(CAUTION),
+            r"\section*{Review}", "Reviewed and accepted by: "
+            r"\rule{6cm}{0.4pt} \qquad Date: \rule{3cm}{0.4pt}", r"\end{document}"]
+    return "\n".join(out) + "\n"

@@ -1,0 +1,168 @@
+r"""Typesetting formulas for the report: names, and long expressions broken over lines.
+
+:class:`ReportPrinter` is sympy's LaTeX printer with one change: a
+multi-letter name is set as one italic word (``\mathit{mass}``) instead of a
+product of letters; subscripts stay subscripts (``m_c`` -> ``m_{c}``,
+``omega_n`` -> ``\omega_{n}``).
+
+Long expressions are split at the terms of a sum; a long product with a long
+sum inside becomes ``prefix \Bigl( ... \Bigr)`` with the sum split again.
+Nothing is computed: the pieces are the expression's own terms and factors.
+
+>>> import sympy as sp
+>>> a, b, c = sp.symbols("a b c")
+>>> tex(sp.Symbol("omega_n") * sp.Symbol("m_c") + sp.Symbol("mass"))
+'m_{c} \\omega_{n} + \\mathit{mass}'
+>>> lines = formula_lines("x", sum(sp.Symbol(f"a_{i}") * b**i for i in range(30)), width=40)
+>>> len(lines) > 3 and all(visible_width(line) <= 48 for line in lines)
+True
+>>> lines[0][:8]
+'x &= a_{'
+"""
+from __future__ import annotations
+
+import re
+
+import sympy as sp
+from sympy.printing.latex import LatexPrinter
+
+from ..model import S
+
+__all__ = ["ReportPrinter", "tex", "visible_width", "fragments", "formula_lines", "matrix_tex",
+           "text", "WIDTH"]
+
+WIDTH = 78  # visible characters of a display line on A4 with 2 cm margins, 10 pt (measured by eye)
+
+
+class ReportPrinter(LatexPrinter):
+    """sympy's LaTeX printer with multi-letter names set as single italic words."""
+
+    def _print_Symbol(self, expr, style="plain"):
+        out = super()._print_Symbol(expr, style)
+        match = re.match(r"^([A-Za-z]{2,})(?![A-Za-z])", out)
+        if match:
+            out = r"\mathit{" + match.group(1) + "}" + out[match.end():]
+        return out
+
+
+_PRINTER = ReportPrinter()
+
+
+def tex(expr) -> str:
+    """LaTeX of a sympy object with the report's naming rules."""
+    return _PRINTER.doprint(expr)
+
+
+_COMMANDS = re.compile(r"\\(left|right|Bigl|Bigr|mathit|mathrm|operatorname|quad|qquad|cdot)\b|\\\\")
+
+
+def visible_width(code: str) -> int:
+    r"""A rough upper bound on the printed width of LaTeX math, in characters.
+
+    Commands count as one character (``\omega``), braces and scripts as none.
+    A fraction is counted as numerator plus denominator, which over-estimates.
+
+    >>> visible_width(r"\frac{m \omega_{n}^{2}}{2}")
+    5
+    """
+    code = code.replace(r"\frac", "")
+    code = _COMMANDS.sub("", code)
+    code = re.sub(r"\\[A-Za-z]+", "x", code)
+    code = re.sub(r"[{}&^_]", "", code)
+    return len(code.replace(" ", ""))
+
+
+def _term_fragments(expr, width: int) -> list[str]:
+    code = tex(expr)
+    if visible_width(code) <= width or not expr.is_Mul:
+        return [code]
+    num, den = sp.fraction(expr, exact=True)
+    factors = sp.Mul.make_args(num)
+    sums = [f for f in factors if f.is_Add]
+    if not sums:
+        return [code]
+    big = max(sums, key=lambda f: visible_width(tex(f)))
+    rest = [f for f in factors if f is not big]
+    prefix_expr = sp.Mul(*rest, evaluate=False) if rest else sp.Integer(1)
+    if den != 1:
+        prefix = r"\frac{" + tex(prefix_expr) + "}{" + tex(den) + "}"
+    else:
+        prefix = "" if prefix_expr == 1 else tex(prefix_expr)
+    inner = fragments(big, width - 4)
+    inner[0] = (prefix + r" \Bigl(" + inner[0]).strip()
+    inner[-1] = inner[-1] + r" \Bigr)"
+    return inner
+
+
+def fragments(expr, width: int = WIDTH) -> list[str]:
+    """Pieces of the expression's LaTeX that joined with spaces give the whole formula."""
+    if not isinstance(expr, sp.Expr) or not expr.is_Add:
+        return _term_fragments(expr, width) if isinstance(expr, sp.Expr) else [tex(expr)]
+    out: list[str] = []
+    terms = _PRINTER._as_ordered_terms(expr)
+    if S in expr.free_symbols:  # polynomials in s: descending powers
+        terms = sorted(terms, key=lambda t: -t.as_coeff_exponent(S)[1])
+    for k, term in enumerate(terms):
+        negative = term.could_extract_minus_sign()
+        body = -term if negative else term
+        pieces = _term_fragments(body, width - 2)
+        op = "-" if negative else ("+" if k else "")
+        if body.is_Add:  # a sum inside a sum: keep its brackets
+            pieces[0], pieces[-1] = r"\Bigl(" + pieces[0], pieces[-1] + r"\Bigr)"
+        pieces[0] = f"{op} {pieces[0]}".strip()
+        out += pieces
+    return out
+
+
+def pack(pieces: list[str], width: int = WIDTH) -> list[str]:
+    """Greedily join consecutive pieces into lines no wider than ``width``."""
+    lines: list[str] = []
+    for piece in pieces:
+        if lines and visible_width(lines[-1] + piece) <= width:
+            lines[-1] = lines[-1] + " " + piece
+        else:
+            lines.append(piece)
+    return lines
+
+
+def formula_lines(lhs: str, expr, relation: str = "=", width: int = WIDTH) -> list[str]:
+    """``lhs &= ...`` lines for an ``align*`` environment, continuation lines indented."""
+    first = visible_width(lhs) + 3
+    lines = pack(fragments(expr, width - first), width - first)
+    out = [f"{lhs} &{relation} {lines[0]}" if lhs else f"&{relation} {lines[0]}"]
+    out += [rf"&\quad {line}" for line in lines[1:]]
+    return out
+
+
+def equation_lines(lhs, rhs, label: str = "", width: int = WIDTH) -> list[str]:
+    """An equation ``label: lhs = rhs`` for ``align*``; both sides broken when long."""
+    label = f"{label}\\colon\\quad " if label else ""
+    inner = width - visible_width(label) - 4
+    left = pack(fragments(lhs, inner), inner)
+    right = pack(fragments(rhs, inner - 2), inner - 2)
+    if len(left) == 1 and len(right) == 1 and visible_width(left[0] + right[0]) <= inner:
+        return [f"{label}& {left[0]} = {right[0]}"]
+    out = [f"{label}& {left[0]}"] + [rf"&\quad {line}" for line in left[1:]]
+    out.append(f"&= {right[0]}")
+    return out + [rf"&\quad {line}" for line in right[1:]]
+
+
+def matrix_tex(mat) -> str | None:
+    """A ``bmatrix`` when it fits on a line, otherwise ``None`` (show the entries one by one)."""
+    rows = [" & ".join(tex(e) for e in mat.row(i)) for i in range(mat.rows)]
+    if max(visible_width(r) for r in rows) + 2 * mat.cols > WIDTH - 12:
+        return None
+    return r"\begin{bmatrix} " + r" \\ ".join(rows) + r" \end{bmatrix}"
+
+
+_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
+            "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
+
+
+def text(value) -> str:
+    r"""Plain text made safe for LaTeX.
+
+    >>> text("N*s/m & 5% of m_c")
+    'N*s/m \\& 5\\% of m\\_c'
+    """
+    return "".join(_SPECIAL.get(ch, ch) for ch in str(value))

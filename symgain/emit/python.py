@@ -1,0 +1,132 @@
+"""Python emitter: one standalone module that needs numpy only.
+
+Each function takes the parameters as keyword arguments, accepts floats or
+numpy arrays (broadcast together) and returns an array of shape
+``(..., rows, cols)``. Before computing, it tests the validity conditions
+(rule in :mod:`symgain.emit.common`) and raises ``ValueError`` naming the
+condition and, for arrays, the first offending index. Shared subexpressions
+are computed once (``sympy.cse``). Names that are Python keywords get ``_p``
+appended.
+
+>>> import sympy as sp
+>>> from symgain.model import Model, Parameter, TargetSpec
+>>> from symgain.design import derive
+>>> m = Parameter.declare("m", sign="positive", range=(1, 2))
+>>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
+>>> namespace = {}
+>>> exec(python_module(derive(model)), namespace)
+>>> namespace["feedback_gain"](m=[1.0, 2.0]).tolist()
+[[[1.0, 2.0]], [[2.0, 4.0]]]
+"""
+from __future__ import annotations
+
+import sympy as sp
+from sympy.printing.numpy import NumPyPrinter
+
+from ..design import Design
+from .common import (PYTHON_RESERVED, TOLERANCE, Function, design_functions, failure_rule, mangle,
+                     shared_subexpressions)
+
+__all__ = ["python_module", "PythonPrinter"]
+
+
+class PythonPrinter(NumPyPrinter):
+    """sympy's NumPy printer, writing ``numpy.`` calls and plain float literals."""
+
+    def __init__(self, settings=None):
+        super().__init__(settings or {"fully_qualified_modules": True})
+
+    def _print_Pow(self, expr, rational=False):
+        if expr.exp == -1:
+            return "1/" + self.parenthesize(expr.base, sp.printing.precedence.PRECEDENCE["Pow"])
+        return super()._print_Pow(expr, rational=rational)
+
+
+def _range_text(rng) -> str:
+    return f"[{rng[0]:g}, {rng[1]:g}]" if rng else "no declared range"
+
+
+def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]:
+    model = design.model
+    rows, cols = fn.shape
+    lines = [f'"""{fn.part.capitalize()} {fn.key.replace("_", " ")} {fn.label} of {model.name}: '
+             f"an array of shape (..., {rows}, {cols}).", ""]
+    lines.append("Formulas:")
+    for i in range(rows):
+        for j in range(cols):
+            lines.append(f"    {fn.label}[{i}, {j}] = {sp.sstr(fn.matrix[i, j])}")
+    lines += ["", "Parameters (keyword only; floats or numpy arrays, broadcast together):"]
+    for name, meaning, unit, rng in fn.meanings:
+        shown = names[name] + (f" (model name {name})" if names[name] != name else "")
+        unit_text = f" [{unit}]" if unit else ""
+        lines.append(f"    {shown}{unit_text}: {meaning or 'no meaning given'}; range {_range_text(rng)}")
+    lines += ["", "Valid when (otherwise ValueError):"]
+    if fn.conditions:
+        lines += [f"    {sp.sstr(c)} != 0" for c in fn.conditions]
+        lines.append(f"    (fails where |f| <= {TOLERANCE['double']:g} * (1 + sum of |terms of f|))")
+    else:
+        lines.append("    always (the declared signs rule out every singular case)")
+    lines.append('"""')
+    return lines
+
+
+def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]:
+    names = {a: mangle(a, PYTHON_RESERVED) for a in fn.arguments}
+    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions])
+    rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
+    args = ", ".join(names[a] for a in fn.arguments)
+    body = [f"def {fn.name}(*, {args}):"]
+    body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
+    for a in fn.arguments:
+        body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=float)")
+    body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
+    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails"}
+    if fn.conditions:
+        conds = [c.xreplace(rename) for c in fn.conditions]
+        for cond, orig in zip(conds, fn.conditions):
+            (value,), terms = failure_rule(cond)
+            scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
+            body.append(f"    _fails(numpy.abs({printer.doprint(value)}) <= "
+                        f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
+                        f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
+    entries = [e.xreplace(rename) for e in fn.matrix]
+    replacements, reduced = shared_subexpressions(entries, avoid)
+    for sym, expr in replacements:
+        body.append(f"    {sym} = {printer.doprint(expr)}")
+    rows, cols = fn.shape
+    body.append(f"    out = numpy.empty(shape + ({rows}, {cols}))")
+    for k, expr in enumerate(reduced):
+        i, j = divmod(k, cols)
+        body.append(f"    out[..., {i}, {j}] = {printer.doprint(expr)}")
+    body.append("    return out")
+    return body
+
+
+_HELPER = '''
+def _fails(bad, shape, function, condition):
+    """Raise ValueError where a validity condition fails (the first offending index)."""
+    bad = numpy.broadcast_to(bad, shape)
+    if bad.any():
+        if bad.ndim == 0:
+            raise ValueError(f"{function}: condition {condition} fails at these parameter values")
+        index = tuple(int(i) for i in numpy.argwhere(bad)[0])
+        raise ValueError(f"{function}: condition {condition} fails at index {index}")
+'''
+
+
+def python_module(design: Design) -> str:
+    """The text of a standalone Python module (imports numpy only) for the design."""
+    model = design.model
+    printer = PythonPrinter()
+    fns = design_functions(design)
+    head = [f'"""Closed-form gains of {model.name}' + (f": {model.title}" if model.title else "") + ".",
+            "",
+            "Generated by symgain from the model's symbolic design; needs numpy only.",
+            "Functions: " + ", ".join(f.name for f in fns) + ".",
+            "Gains from a linear model must be validated in simulation and on the machine with safe limits.",
+            '"""', "import numpy", "", f"__all__ = {[f.name for f in fns]!r}", _HELPER]
+    for fn in fns:
+        head += [""] + _function(design, fn, printer) + [""]
+    return "\n".join(head).rstrip() + "\n"
