@@ -9,7 +9,7 @@ conditions under which the formulas hold.
 Separation property (common practice): with u = -K x̂, the closed loop of
 plant, regulator and estimator in the coordinates (x, e = x - x̂) is block
 triangular, [[A - B K, B K], [0, A - L C]], so its poles are the union of
-both pole sets.
+both pole sets (:func:`separation_polynomial` builds that loop for tests).
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -32,11 +32,12 @@ import sympy as sp
 from .errors import DesignError
 from .model import S, Model
 
-__all__ = ["design_estimator", "SEPARATION_NOTE"]
+__all__ = ["design_estimator", "separation_polynomial", "SEPARATION_NOTE"]
 
-SEPARATION_NOTE = ("separation property: with u = -K x̂ the closed loop of plant, regulator and estimator "
-                   "has the poles of A - B K together with the poles of A - L C (the matrix is block "
-                   "triangular in the coordinates x and e = x - x̂)")
+SEPARATION_NOTE = ("separation property: with u = -K x_hat the closed loop of plant, regulator and estimator "
+                   "has the poles of A - B K together with the poles of A - L C (its matrix is block "
+                   "triangular in the coordinates x and e = x - x_hat)")
+SEPARATION_TITLE = "separation property: closed-loop polynomial det(sI - A + B K) det(sI - A + L C)"
 
 
 def design_estimator(model: Model, avoid: set[str], feedback=None):
@@ -78,7 +79,9 @@ def design_estimator(model: Model, avoid: set[str], feedback=None):
             steps.append(st)
     separation = dual.target.polynomial if feedback is None or feedback.target is None else \
         sp.Mul(feedback.target.polynomial, dual.target.polynomial, evaluate=False)
-    steps.append(Step("separation", SEPARATION_NOTE, separation))
+    steps.append(Step("separation", SEPARATION_TITLE if feedback is not None else
+                      "separation property: the estimator poles join those of any regulator u = -K x_hat",
+                      separation))
     notes = tuple(note.replace("u = f v", "L = l f^T (one combination f^T y of the outputs)")
                   for note in dual.notes) + (SEPARATION_NOTE,)
     extra = {k: v for k, v in dual.extra.items() if k not in ("gain_symbols", "direction")}

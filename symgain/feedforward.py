@@ -74,7 +74,8 @@ def design_feedforward(model: Model, feedback, integral=None):
     lu = SparseLU.factor(G, field)
     if not lu.det:
         raise DesignError("the steady-state gain C (B K - A)^(-1) B is singular for every parameter value "
-                      "(a zero at s = 0): no static feedforward gives unit gain", where=where)
+                      "(the outputs cannot hold a constant nonzero value, as with a zero at s = 0): no static "
+                          "feedforward gives unit gain", where=where)
     cols = [lu.solve([field.one if i == j else field.zero for i in range(p)]) for j in range(p)]
     N = sp.Matrix(p, p, lambda i, j: field.factored(cols[j][i]))
     Gm = sp.Matrix(p, p, lambda i, j: field.factored(G[i][j]))

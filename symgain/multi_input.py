@@ -208,7 +208,7 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
         try:
             res = place_structured(A, B, pattern, target.polynomial, letter=symbol.lower(), avoid=avoid)
         except DesignError as exc:
-            raise DesignError(f"{part}: {exc.what}", where=pw) from None
+            raise DesignError(exc.what if spec.where.key else f"{part}: {exc.what}", where=pw) from None
         gain = res.branches[0]
         valid = _conditions(gain)
         counts = {"unique": "one solution", "family": f"a family with free gain{'s' if len(res.free) > 1 else ''} "
@@ -262,7 +262,8 @@ def _design_by_direction(A, B, spec, target, *, part, symbol, states, inputs, av
         candidates = [sp.Matrix([1 if i == j else 0 for i in range(m)]) for j in range(m)] + [sp.ones(m, 1)]
         f = next((c for c in candidates if _controllable_somewhere(A, B * c)), None)
         if f is None:
-            raise DesignError(f"{part}: no unit {label[:-1]} direction nor their sum makes the plant {word}; "
+            raise DesignError(("" if spec.where.key else f"{part}: ") +
+                              f"no unit {label[:-1]} direction nor their sum makes the plant {word}; "
                               f"give a pattern or {key}", where=spec.where)
         how = f"{key} {list(f)} chosen by symgain (the first unit vector, then all ones, that keeps the plant {word})"
     single = design_gain(A, B * f, spec, part=part, symbol=symbol, states=states, avoid=avoid, word=word)
@@ -271,4 +272,5 @@ def _design_by_direction(A, B, spec, target, *, part, symbol, states, inputs, av
     steps = (Step("input_direction", f"direction f of the combination ({key})", f),) + single.steps + (
         Step("direction_gain", f"{symbol} = f k", gain),)
     return replace(single, gain=sp.ImmutableMatrix(gain), steps=steps, notes=(note, *single.notes),
-                   extra={**single.extra, "direction": sp.ImmutableMatrix(f), "solution_kind": "direction"})
+                   extra={**single.extra, "gain_symbols": f * single.extra["gain_symbols"],
+                          "direction": sp.ImmutableMatrix(f), "solution_kind": "direction"})

@@ -27,7 +27,8 @@ from .errors import DesignError, ModelError, Where
 from .model import S
 
 __all__ = ["routh_hurwitz", "hurwitz_determinants", "positive_part", "MismatchAnalysis",
-           "analyze_mismatch", "stable_ratio_set", "RatioRange"]
+           "analyze_mismatch", "stable_ratio_set", "RatioRange", "ratio_ranges", "cross_check",
+           "pole_migration", "ClosedLoop", "closed_loop_numeric", "grid_size"]
 
 
 def hurwitz_determinants(coeffs) -> list[sp.Expr]:
@@ -260,6 +261,11 @@ def _grid_values(model, skip: str, levels: int = 5, cap: int = 4000) -> list[dic
         levels -= 1
         axes = [(n, np.linspace(v[0], v[-1], levels) if len(v) > 1 else v) for n, v in axes]
     return [dict(zip([n for n, _ in axes], combo)) for combo in itertools.product(*[v for _, v in axes])]
+
+
+def grid_size(model, name: str) -> int:
+    """Number of grid points :func:`ratio_ranges` scans for ``name``."""
+    return len(_grid_values(model, name))
 
 
 def ratio_ranges(analysis: MismatchAnalysis, *, progress=None, exact: bool = True) -> dict[str, RatioRange]:

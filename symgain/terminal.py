@@ -92,7 +92,9 @@ def format_design(design: Design) -> str:
     model = design.model
     head = f"{model.name}" + (f": {model.title}" if model.title else "")
     lines = [head, f"states {', '.join(model.states)}; inputs {', '.join(model.inputs)}"
-             + (f"; outputs {', '.join(model.outputs)}" if model.outputs else ""), ""]
+             + (f"; outputs {', '.join(model.outputs)}" if model.outputs else "")]
+    lines.extend(f"plant: {note}" for note in model.notes)
+    lines.append("")
     for part in design.parts():
         lines.extend(_format_part(design, part))
         lines.append("")

@@ -149,3 +149,13 @@ def test_bad_input_on_the_command_line_exits_2(case, tmp_path):
 def test_solve_is_for_inputs_only():
     with pytest.raises(ModelError, match="inputs only"):
         lin(PENDULUM, {"theta": "solve", "omega": "0", "tau": "0"})
+
+
+def test_functions_of_the_listed_set_are_differentiated():
+    """d/dx at x = 0 of tanh(k x), atan(k x), exp(k x) - 1, log(1 + k x), sqrt(1 + k x) - 1, x cos(x):
+    k, k, k, k, k/2, 1 (calculus, common practice)."""
+    eqs = {"x1": "tanh(k*x1) + atan(k*x2) + exp(k*x3) - 1", "x2": "log(1 + k*x1) + sqrt(1 + k*x2) - 1",
+           "x3": "x3*cos(x3) + tan(u)"}
+    result = lin(eqs, {"x1": "0", "x2": "0", "x3": "0", "u": "0"}, states=("x1", "x2", "x3"), inputs=("u",))
+    assert result.A == sp.Matrix([[k, k, k], [k, k / 2, 0], [0, 0, 1]])
+    assert result.B == sp.Matrix([0, 0, 1])

@@ -154,3 +154,15 @@ def test_unobservable_plant_is_refused():
                   estimator=poles(-2, -3))
     with pytest.raises(NotControllableError, match="observable"):
         derive(model)
+
+
+def test_separation_property_symbolically():
+    """det(sI - M) of the plant-regulator-estimator loop equals the product of both targets."""
+    from symgain.estimator import separation_polynomial
+
+    model = load_model(STAGE)
+    design = derive(model)
+    char = separation_polynomial(sp.Matrix(model.A), sp.Matrix(model.B), sp.Matrix(model.C),
+                                 sp.Matrix(design.feedback.gain), sp.Matrix(design.estimator.gain))
+    product = design.feedback.target.polynomial * design.estimator.target.polynomial
+    assert sp.simplify(char - sp.expand(product)) == 0

@@ -139,7 +139,10 @@ def run_robust(args) -> int:
     design = derive(model)
     analysis = analyze_mismatch(design, list(dict.fromkeys(args.mismatch)))
     folder = _folder(args, model)
-    with _progress(None, "grid scan", args.quiet) as tick:
+    from ..robust import grid_size
+
+    total = sum(grid_size(model, n) for n in analysis.mismatched)
+    with _progress(total, "grid scan", args.quiet) as tick:
         ranges = ratio_ranges(analysis, progress=tick)
     with _progress(args.points, "eigenvalue check", args.quiet) as tick:
         counts = cross_check(analysis, n_points=args.points, seed=args.seed, progress=tick)

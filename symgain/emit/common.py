@@ -120,4 +120,4 @@ def mangle(name: str, reserved: set[str]) -> str:
     return name
 
 
-PYTHON_RESERVED = set(keyword.kwlist) | set(keyword.softkwlist) | {"numpy", "self"}
+PYTHON_RESERVED = set(keyword.kwlist) | set(keyword.softkwlist) | {"numpy", "shape", "out", "_fails"}

@@ -61,6 +61,10 @@ def design_to_dict(design: Design) -> dict:
         "inputs": list(model.inputs),
         "outputs": list(model.outputs),
     }
+    if model.notes:
+        out["plant_notes"] = list(model.notes)
+    if model.extra.get("equilibrium"):
+        out["equilibrium"] = {str(k): sp.sstr(v) for k, v in model.extra["equilibrium"].items()}
     sensitivity = sensitivity_matrices(design)
     for part in design.parts():
         out[part.part] = _part(part, sensitivity.get(part.part))

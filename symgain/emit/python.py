@@ -80,7 +80,7 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
     body = [f"def {fn.name}(*, {args}):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
     for a in fn.arguments:
-        body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=float)")
+        body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=numpy.float64)")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
     avoid = set(names.values()) | {"shape", "out", "numpy", "_fails"}
     if fn.conditions:
@@ -93,13 +93,23 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
                         f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
     entries = [e.xreplace(rename) for e in fn.matrix]
     replacements, reduced = shared_subexpressions(entries, avoid)
-    for sym, expr in replacements:
-        body.append(f"    {sym} = {printer.doprint(expr)}")
     rows, cols = fn.shape
     body.append(f"    out = numpy.empty(shape + ({rows}, {cols}))")
-    for k, expr in enumerate(reduced):
-        i, j = divmod(k, cols)
-        body.append(f"    out[..., {i}, {j}] = {printer.doprint(expr)}")
+    statements = [(str(sym), expr) for sym, expr in replacements]
+    statements += [(f"out[..., {k // cols}, {k % cols}]", expr) for k, expr in enumerate(reduced)]
+    last_use = {}  # with many temporaries, free each after its last use (memory for large arrays)
+    if len(replacements) > 30:
+        temps = {sym for sym, _ in replacements}
+        for index, (_, expr) in enumerate(statements):
+            for sym in expr.free_symbols & temps:
+                last_use[sym] = index
+    done: dict[int, list[str]] = {}
+    for sym, index in last_use.items():
+        done.setdefault(index, []).append(str(sym))
+    for index, (target, expr) in enumerate(statements):
+        body.append(f"    {target} = {printer.doprint(expr)}")
+        if index in done:
+            body.append(f"    del {', '.join(sorted(done[index]))}")
     body.append("    return out")
     return body
 

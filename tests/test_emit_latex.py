@@ -1,0 +1,160 @@
+"""The LaTeX report: every formula read back with latex2sympy2 equals the design's expression
+(numerically at random points, symbolically for small ones), and the document compiles with
+pdflatex without errors and without any line running into the margin."""
+import re
+import shutil
+import subprocess
+import warnings
+
+import numpy as np
+import pytest
+import sympy as sp
+
+from emit_helpers import EXAMPLES, IDS, design_of
+from symgain.emit import emit
+from symgain.emit.latex import CAUTION
+from symgain.model import S
+
+with warnings.catch_warnings():
+    warnings.simplefilter("ignore")
+    from latex2sympy2 import latex2sympy
+
+PDFLATEX = shutil.which("pdflatex")
+_LAYOUT = [(r"\\", " "), (r"\Bigl", ""), (r"\Bigr", ""), (r"\qquad", " "), (r"\quad", " "), ("&", " ")]
+
+
+def formulas(report: str) -> list[tuple[str, str]]:
+    """(key, source) of every formula line, marked ``%@ KEY`` by the emitter."""
+    return [(line.rsplit("%@", 1)[1].strip(), line.rsplit("%@", 1)[0])
+            for line in report.splitlines() if "%@" in line]
+
+
+def sides(source: str):
+    """Layout removed (alignment, line breaks, bracket sizes, labels); split at the relation."""
+    head, matrix = (source.split(r"\begin{bmatrix}", 1) + [""])[:2]
+    for old, new in _LAYOUT:
+        head = head.replace(old, new)
+    source = head + (r"\begin{bmatrix}" + matrix if matrix else "")
+    if r"\colon" in source:
+        source = source.split(r"\colon", 1)[1]
+    if r"\neq" in source:
+        left, right = source.split(r"\neq", 1)
+        return left, right, "ne"
+    if "=" in source:
+        left, right = source.split("=", 1)
+        return left, right, "eq"
+    return "", source, "none"
+
+
+def parse(code: str, symbols: dict):
+    """latex2sympy2, then its symbols mapped by name onto the design's symbols."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        expr = latex2sympy(code.strip())
+    mapping = {}
+    for sym in expr.free_symbols:
+        name = re.sub(r"\\mathit|[\\{}]", "", sym.name)
+        mapping[sym] = symbols.get(name, sp.I if name == "i" else sym)
+    return expr.xreplace(mapping)
+
+
+def expected(design, key: str):
+    """What the formula with this key must equal, taken from the design object itself."""
+    indices = [int(i) for i in re.findall(r"\[(\d+)\]", key)]
+    path = re.sub(r"\[\d+\]", "", key).split(".")
+    if path[0] == "plant":
+        value = getattr(design.model, path[1])
+    else:
+        part = getattr(design, path[0])
+        if path[1] == "extra":
+            value = part.extra[path[2]]
+        elif path[1] == "target_poles":
+            value = part.target.poles
+        else:
+            value = part.step(path[1]).value
+    for i in ([tuple(indices)] if isinstance(value, sp.MatrixBase) and len(indices) == 2 else indices):
+        value = value[i]
+    return value
+
+
+def same(got, want, symbols, rng) -> bool:
+    """Equal at 4 random points (parameters in their ranges, other symbols in [0.5, 2])."""
+    if isinstance(want, sp.MatrixBase):
+        return got.shape == want.shape and all(same(g, w, symbols, rng) for g, w in zip(got, want))
+    got, want = sp.sympify(got), sp.sympify(want)
+    free = sorted(got.free_symbols | want.free_symbols, key=str)
+    if not free:
+        return abs(complex(got.evalf(30)) - complex(want.evalf(30))) <= 1e-12 * (1 + abs(complex(want.evalf(30))))
+    if sp.count_ops(want) < 60 and sp.simplify(got - want) == 0:
+        return True
+    for _ in range(4):
+        point = {s: sp.Float(rng.uniform(*symbols[s.name + "#range"]) if s.name + "#range" in symbols
+                             else rng.uniform(0.5, 2.0), 30) for s in free}
+        g, w = complex(got.evalf(30, subs=point)), complex(want.evalf(30, subs=point))
+        if abs(g - w) > 1e-10 * max(1.0, abs(w)):
+            return False
+    return True
+
+
+def check_report(design, report: str) -> int:
+    symbols = {p.name: p.symbol for p in design.model.parameters}
+    symbols.update({f"{p.name}#range": p.range for p in design.model.parameters if p.range})
+    symbols["s"] = S
+    for part in design.parts():
+        gs = part.extra.get("gain_symbols")
+        if isinstance(gs, sp.MatrixBase):
+            symbols.update({str(s): s for s in gs})
+        symbols.update({str(s): s for s in part.free_gains})
+    rng = np.random.default_rng(5)
+    items = formulas(report)
+    for key, source in items:
+        want = expected(design, key)
+        left, right, relation = sides(source)
+        if isinstance(want, sp.Eq):
+            assert relation == "eq", key
+            assert same(parse(left, symbols), want.lhs, symbols, rng), key
+            assert same(parse(right, symbols), want.rhs, symbols, rng), key
+        elif isinstance(want, sp.Ne):
+            assert relation == "ne" and same(parse(left, symbols), want.lhs - want.rhs, symbols, rng), key
+        else:
+            assert same(parse(right, symbols), want, symbols, rng), (key, right)
+    return len(items)
+
+
+@pytest.mark.parametrize("path", EXAMPLES + ["odd"], ids=IDS + ["odd"])
+def test_formulas_read_back(path, tmp_path):
+    design = design_of(path)
+    (tex,) = emit(design, ["latex"], tmp_path)
+    report = tex.read_text()
+    keys = {k for k, _ in formulas(report)}
+    for part in design.parts():  # every gain entry is shown, one by one
+        for i in range(part.gain.rows):
+            for j in range(part.gain.cols):
+                assert f"{part.part}.solution[{i}][{j}]" in keys or part.step("solution") is None
+    assert check_report(design, report) >= 5
+    assert "Safety caution" in report and report.index("Safety caution") > report.index("Numeric cross-check")
+
+
+def test_names_and_escaping(tmp_path):
+    design = design_of("odd")  # omega_n, lambda, int; a meaning with & and %
+    report = emit(design, ["latex"], tmp_path)[0].read_text()
+    assert r"\omega_{n}" in report and r"\lambda" in report and r"\mathit{int}" in report
+    assert r"actuator gain \& 100\% sign" in report
+    assert r"\mathit{int} &\neq 0" in report
+    assert CAUTION.split(".")[0] in report
+
+
+@pytest.mark.skipif(PDFLATEX is None, reason="pdflatex is not installed (Debian: texlive-latex-base); "
+                    "the report compilation test cannot run here")
+@pytest.mark.parametrize("path", EXAMPLES + ["odd"], ids=IDS + ["odd"])
+def test_report_compiles_without_overfull_lines(path, tmp_path):
+    design = design_of(path)
+    (tex,) = emit(design, ["latex"], tmp_path, name="report")
+    run = subprocess.run([PDFLATEX, "-interaction=nonstopmode", "-halt-on-error", tex.name],
+                         cwd=tmp_path, capture_output=True, text=True, timeout=120)
+    log = (tmp_path / "report.log").read_text(errors="replace")
+    assert run.returncode == 0, log[-2000:]
+    assert (tmp_path / "report.pdf").stat().st_size > 1000
+    assert not re.search(r"^! ", log, re.M), log
+    overfull = re.findall(r"Overfull \\hbox \((\d+\.\d+)pt too wide\)", log)
+    assert not overfull, f"lines into the margin: {overfull}"
