@@ -222,7 +222,7 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
             Step("coefficient_equations", "coefficients matched power by power (polynomial equations)",
                  res.equations),
             Step("solution", f"gain {symbol}", gain),
-            Step("branches", "every solution branch", res.branches),
+            *([Step("branches", "every solution branch", res.branches)] if len(res.branches) > 1 else []),
             Step("valid_when", "conditions for the formulas to hold", valid),
         )
         return GainDesign(part=part, symbol=symbol, gain=sp.ImmutableMatrix(gain), valid_when=valid,

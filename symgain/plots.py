@@ -119,7 +119,7 @@ def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray) -> Fig
 
     ``sweeps``: name -> (true values, poles array of shape (count, n)).
     """
-    fig = new_figure(7.0 * len(sweeps), 5.5)
+    fig = new_figure(7.0 * len(sweeps), 6.0)
     panels = fig.subplots(1, len(sweeps), squeeze=False)[0]
     for ax, (name, (values, poles)) in zip(panels, sweeps.items()):
         norm = Normalize(values.min(), values.max())
@@ -131,15 +131,16 @@ def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray) -> Fig
         ax.axvline(0.0, color="0.3", lw=1, ls="--")
         ax.axhline(0.0, color="0.7", lw=0.8)
         unstable = poles.real.max() >= 0
-        nominal = model.parameter(name).nominal
+        nominal, unit = model.parameter(name).nominal, model.parameter(name).unit
         ax.set_title(f"true {name} over its range, controller assumes {name} = {nominal:g}"
+                     + (f" {unit}" if unit else "")
                      + ("\n(some true values give an unstable loop)" if unstable else ""), fontsize=11)
         ax.set_xlabel("real part [1/s]")
         ax.set_ylabel("imaginary part [rad/s]")
         ax.grid(True, alpha=0.3)
         ax.legend(loc="best")
         fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label=f"true {_unit(model, name)}")
-    fig.suptitle(f"{model.title or model.name}: closed-loop pole migration under mismatch", fontsize=12)
+    fig.suptitle(f"{model.title or model.name}\nclosed-loop pole migration under mismatch", fontsize=12)
     fig.tight_layout()
     return fig
 
@@ -150,9 +151,16 @@ def step_figure(model, runs, output_name: str, gains: str = "fixed") -> Figure:
     ax = fig.add_subplot()
     cmap = colormaps["tab10"]
     stable_peaks = []
+    many = len(runs) > 9  # too many corners to name one by one: group them by verdict
+    counts = {True: sum(r.stable for r in runs[1:]), False: sum(not r.stable for r in runs[1:])}
     for n, run in enumerate(runs):
         if run.label == "nominal":
             ax.plot(run.time, run.output, color="black", lw=2.4, label="nominal", zorder=5)
+        elif many:
+            first = run is next(r for r in runs[1:] if r.stable == run.stable)
+            label = f"corners, {'stable' if run.stable else 'unstable'} ({counts[run.stable]})" if first else None
+            ax.plot(run.time, run.output, color="tab:blue" if run.stable else "tab:red", lw=1.0,
+                    alpha=0.6, ls="-" if run.stable else ":", label=label)
         else:
             label = run.label + ("" if run.stable else " (unstable)")
             ax.plot(run.time, run.output, color=cmap(n % 10), lw=1.3, label=label,

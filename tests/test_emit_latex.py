@@ -32,9 +32,10 @@ def formulas(report: str) -> list[tuple[str, str]]:
 def sides(source: str):
     """Layout removed (alignment, line breaks, bracket sizes, labels); split at the relation."""
     head, matrix = (source.split(r"\begin{bmatrix}", 1) + [""])[:2]
+    matrix, tail = (matrix.split(r"\end{bmatrix}", 1) + [""])[:2]
     for old, new in _LAYOUT:
-        head = head.replace(old, new)
-    source = head + (r"\begin{bmatrix}" + matrix if matrix else "")
+        head, tail = head.replace(old, new), tail.replace(old, new)
+    source = head + (r"\begin{bmatrix}" + matrix + r"\end{bmatrix}" if matrix else "") + tail
     if r"\colon" in source:
         source = source.split(r"\colon", 1)[1]
     if r"\neq" in source:
@@ -48,13 +49,16 @@ def sides(source: str):
 
 def parse(code: str, symbols: dict):
     """latex2sympy2, then its symbols mapped by name onto the design's symbols."""
+    # latex2sympy2 reads a lone d as a differential and e as Euler's number: name them as words
+    code = re.sub(r"(?<![\\A-Za-z])([de])(?![A-Za-z])", r"\\mathit{\1}", code)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         expr = latex2sympy(code.strip())
     mapping = {}
     for sym in expr.free_symbols:
         name = re.sub(r"\\mathit|[\\{}]", "", sym.name)
-        mapping[sym] = symbols.get(name, sp.I if name == "i" else sym)
+        digits = re.sub(r"^([A-Za-z]+)_(\d+)$", r"\1\2", name)  # m1 is typeset m_{1}, like m_1
+        mapping[sym] = symbols.get(name, symbols.get(digits, sp.I if name == "i" else sym))
     return expr.xreplace(mapping)
 
 
@@ -72,8 +76,10 @@ def expected(design, key: str):
             value = part.target.poles
         else:
             value = part.step(path[1]).value
-    for i in ([tuple(indices)] if isinstance(value, sp.MatrixBase) and len(indices) == 2 else indices):
-        value = value[i]
+    while indices:
+        if isinstance(value, sp.MatrixBase) and len(indices) == 2:
+            return value[indices[0], indices[1]]
+        value = value[indices.pop(0)]
     return value
 
 

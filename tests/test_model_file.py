@@ -4,8 +4,6 @@ Good files must give the matrices and targets written in them; bad files must ra
 SymgainError whose one-line message names the file, the key (and row/column of a matrix
 entry) and what was found.
 """
-from pathlib import Path
-
 import pytest
 import sympy as sp
 
@@ -111,7 +109,8 @@ def test_undeclared_symbol_in_poles():
 
 
 def test_non_square_a():
-    _, msg = error_of(BASE.replace('A = [["0", "1"], ["0", "-c/m"]]', 'A = [["0", "1", "0"], ["0", "-c/m", "1"]]'))
+    _, msg = error_of(BASE.replace('A = [["0", "1"], ["0", "-c/m"]]',
+                                   'A = [["0", "1", "0"], ["0", "-c/m", "1"]]'))
     assert msg.startswith("cart.toml: plant.A:") and "square" in msg and "2x3" in msg
 
 

@@ -45,7 +45,7 @@ def test_pole_migration_plot(tmp_path, demo):
     sweeps = {n: pole_migration(design, n, count=30) for n in ("m", "tau")}
     poles = np.linalg.eigvals(ClosedLoop(design)(nominal, nominal))
     path = write_atomic(tmp_path / "p.png", png_bytes(pole_migration_figure(model, sweeps, poles)))
-    _check_png(path, (14.0, 5.5))
+    _check_png(path, (14.0, 6.0))
 
 
 def test_step_plot(tmp_path, demo):

@@ -105,12 +105,15 @@ def run_schedule(args) -> int:
     evaluator = GainEvaluator(design)
     folder = _folder(args, model)
     total = int(np.prod([a.values.size for a in axes]))
-    with _progress(total, "gains", args.quiet) as tick:
-        schedule = compute_schedule(design, axes, evaluator=evaluator, progress=tick)
-    errors = interpolation_errors(schedule, evaluator=evaluator)
     base = f"{model.name}-schedule"
-    written = [write_atomic(folder / f"{base}.csv", schedule_csv(schedule)),
-               write_atomic(folder / f"{model.name}_schedule.c", lookup_table_c(schedule, errors)),
+    stages = 3 if len(axes) == 2 else 2  # evaluate, CSV rows, C rows (2-D tables)
+    with _progress(stages * total, "schedule", args.quiet) as tick:
+        schedule = compute_schedule(design, axes, evaluator=evaluator, progress=tick)
+        errors = interpolation_errors(schedule, evaluator=evaluator)
+        table = schedule_csv(schedule, progress=tick)
+        source = lookup_table_c(schedule, errors, progress=tick if len(axes) == 2 else None)
+    written = [write_atomic(folder / f"{base}.csv", table),
+               write_atomic(folder / f"{model.name}_schedule.c", source),
                write_atomic(folder / f"{base}.png", png_bytes(schedule_figure(schedule)))]
     invalid = int((~schedule.valid).sum())
     grid = " x ".join(f"{a.name} {a.values[0]:g}..{a.values[-1]:g} ({a.values.size})" for a in axes)
@@ -229,7 +232,8 @@ def run_plot(args) -> int:
     output = model.outputs[0] if model.outputs else model.states[0]
     path = write_atomic(folder / f"{model.name}-step.png", png_bytes(step_figure(model, runs, output, args.gains)))
     unstable = [r.label for r in runs if not r.stable]
+    listed = "; ".join(unstable[:3]) + ("; ..." if len(unstable) > 3 else "")
     print(f"{len(runs)} step responses (nominal and {len(runs) - 1} corners), "
-          f"{len(unstable)} unstable" + (": " + "; ".join(unstable) if unstable else ""))
+          f"{len(unstable)} unstable" + (f": {listed}" if unstable else ""))
     print(f"wrote {path}")
     return 0

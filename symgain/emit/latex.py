@@ -161,6 +161,14 @@ def _step(part: GainDesign, step: Step) -> list[str]:
             if isinstance(item, sp.Eq):
                 label = f"s^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""
                 rows.append((f"{key}[{k}]", equation_lines(item.lhs, item.rhs, label)))
+            elif isinstance(item, sp.MatrixBase):
+                shown = matrix_tex(item)
+                if shown is not None:
+                    rows.append((f"{key}[{k}]", [f"{part.symbol}^{{({k + 1})}} &= {shown}"]))
+                else:
+                    rows += [(f"{key}[{k}][{i}][{j}]", formula_lines(f"{part.symbol}^{{({k + 1})}}_{{{i + 1},{j + 1}}}",
+                                                                  item[i, j]))
+                             for i in range(item.rows) for j in range(item.cols) if item[i, j] != 0]
             elif isinstance(item, sp.Ne):
                 rows.append((f"{key}[{k}]", formula_lines(tex(item.lhs), item.rhs, r"\neq")))
             else:

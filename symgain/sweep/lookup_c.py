@@ -105,7 +105,7 @@ def _comment(text: str) -> str:
 
 
 def lookup_table_c(schedule: Schedule, errors: dict[str, InterpolationError] | None = None,
-                   refine: int = REFINE) -> str:
+                   refine: int = REFINE, progress=None) -> str:
     """The C source: table, axes, and ``int <name>_schedule(<params>, double gains[])``."""
     model = schedule.design.model
     errors = errors if errors is not None else interpolation_errors(schedule, refine)
@@ -145,7 +145,7 @@ def lookup_table_c(schedule: Schedule, errors: dict[str, InterpolationError] | N
         lines.append(f"static const double {name}_{a.name}_step = {_c_number(step)};")
     dims = "".join(f"[{up}_N_{a.name.upper()}]" for a in axes)
     lines.append(f"static const double {name}_table{dims}[{up}_N_GAINS] = {{")
-    lines.extend(_table_rows(schedule))
+    lines.extend(_table_rows(schedule, progress))
     lines.append("};")
     lines.append(f"static const unsigned char {name}_valid{dims} = {{")
     lines.extend(_valid_rows(schedule))
@@ -155,7 +155,7 @@ def lookup_table_c(schedule: Schedule, errors: dict[str, InterpolationError] | N
     return "\n".join(lines) + "\n"
 
 
-def _table_rows(schedule: Schedule) -> list[str]:
+def _table_rows(schedule: Schedule, progress=None) -> list[str]:
     g, v = schedule.gains, schedule.valid
     def node(index):
         return "{" + ", ".join(_c_number(g[(k, *index)] if v[index] else np.nan)
@@ -164,6 +164,8 @@ def _table_rows(schedule: Schedule) -> list[str]:
         return ["    " + node((i,)) + ("," if i < v.size - 1 else "") for i in range(v.size)]
     rows = []
     for i in range(v.shape[0]):
+        if progress is not None:
+            progress(v.shape[1])
         inner = ",\n      ".join(node((i, j)) for j in range(v.shape[1]))
         rows.append("    {" + inner + "}" + ("," if i < v.shape[0] - 1 else ""))
     return rows

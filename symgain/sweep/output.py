@@ -46,6 +46,9 @@ def write_atomic(path: str | Path, data: str | bytes) -> Path:
     except OSError as exc:
         raise OutputError(f"cannot write: {exc.strerror or exc}", where=Where(str(path))) from None
     try:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # the permissions of an ordinary new file, not mkstemp's 0600
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8", "newline": ""})) as fh:
             fh.write(data)
         os.replace(tmp, path)

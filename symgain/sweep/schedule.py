@@ -151,15 +151,22 @@ def _fmt(x: float) -> str:
     return f"{x:.12g}"
 
 
-def schedule_csv(schedule: Schedule) -> str:
-    """The table: one row per grid point; invalid points have empty gain cells and the reason."""
+def schedule_csv(schedule: Schedule, progress=None) -> str:
+    """The table: one row per grid point; invalid points have empty gain cells and the reason.
+
+    ``progress``, when given, is called with the number of rows written, every 4096 rows.
+    """
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow([a.label for a in schedule.axes] + [e.identifier for e in schedule.entries]
                     + ["valid", "failed_conditions"])
-    for index in np.ndindex(schedule.valid.shape):
+    for n, index in enumerate(np.ndindex(schedule.valid.shape), 1):
+        if progress is not None and n % 4096 == 0:
+            progress(4096)
         coords = [_fmt(a.values[i]) for a, i in zip(schedule.axes, index)]
         ok = bool(schedule.valid[index])
         cells = [_fmt(schedule.gains[(k, *index)]) if ok else "" for k in range(len(schedule.entries))]
         writer.writerow(coords + cells + ["yes" if ok else "no", schedule.reasons.get(index, "")])
+    if progress is not None:
+        progress(schedule.valid.size % 4096)
     return out.getvalue()
