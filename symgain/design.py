@@ -91,7 +91,7 @@ class Design:
         return design_markdown(self)
 
 
-def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states) -> str:
+def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no input moves") -> str:
     """Left null vectors of the controllability matrix, as combinations of states."""
     n = A.rows
     ctrb = sp.Matrix.hstack(*[A**i * B for i in range(n)])
@@ -104,7 +104,7 @@ def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states) -> str:
         terms = [f"({sp.simplify(c)})*{s}" if len(sp.Add.make_args(c)) > 1 else f"{sp.simplify(c)}*{s}"
                  for c, s in zip(v, states) if sp.simplify(c) != 0]
         combos.append(" + ".join(terms).replace("1*", "") if terms else "0")
-    return "; no input moves " + ", nor ".join(combos) if combos else ""
+    return f"; {lead} " + ", nor ".join(combos) if combos else ""
 
 
 def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symbol: str,
@@ -121,7 +121,8 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
         raise NotControllableError(
             f"the plant is not {word} for any parameter values "
             f"(the {'controllability' if word == 'controllable' else 'observability'} matrix is singular)"
-            + _unreachable_directions(A, B, states), where=spec.where)
+            + _unreachable_directions(A, B, states, "no input moves" if word == "controllable"
+                                      else "no output sees"), where=spec.where)
     valid = nonzero_conditions([det_num, *result.gain_denominators])
     Ksym = result.gain_symbols
     steps = (

@@ -82,13 +82,39 @@ def design_estimator(model: Model, avoid: set[str], feedback=None):
     steps.append(Step("separation", SEPARATION_TITLE if feedback is not None else
                       "separation property: the estimator poles join those of any regulator u = -K x_hat",
                       separation))
-    notes = tuple(note.replace("u = f v", "L = l f^T (one combination f^T y of the outputs)")
-                  for note in dual.notes) + (SEPARATION_NOTE,)
+    notes = tuple(note.replace("one combination u = f v", "one combination f^T y of the outputs (by duality)")
+                  .replace("L = f k", "L = k^T f^T") for note in dual.notes) + (SEPARATION_NOTE,)
     extra = {k: v for k, v in dual.extra.items() if k not in ("gain_symbols", "direction")}
     extra["gain_symbols"] = Lsym
     if "direction" in dual.extra:
         extra["output_direction"] = sp.ImmutableMatrix(dual.extra["direction"]).T
-    return replace(dual, gain=sp.ImmutableMatrix(L), steps=tuple(steps), notes=notes, extra=extra)
+    part = replace(dual, gain=sp.ImmutableMatrix(L), steps=tuple(steps), notes=notes, extra=extra)
+    return _index_by_state(part, p) if p > 1 else part
+
+
+def _swap(value, mapping):
+    if isinstance(value, tuple):
+        return tuple(_swap(v, mapping) for v in value)
+    return value.xreplace(mapping) if isinstance(value, (sp.Basic, sp.MatrixBase)) else value
+
+
+def _index_by_state(part, p: int):
+    """Rename the dual's l_ij (output i, state j) to l_ji, so that l_ij sits at L[i, j]."""
+    from .design import Step
+
+    Lsym = part.extra["gain_symbols"]
+    mapping = {}
+    for i in range(Lsym.rows):
+        for j in range(Lsym.cols):
+            s = Lsym[i, j]
+            if isinstance(s, sp.Symbol) and "_" in s.name:
+                base = s.name.rsplit("_", 1)[0]
+                mapping[s] = sp.Symbol(f"{base}_{i + 1}{j + 1}")
+    return replace(part, gain=_swap(part.gain, mapping), valid_when=_swap(part.valid_when, mapping),
+                   closed_loop_polynomial=_swap(part.closed_loop_polynomial, mapping),
+                   steps=tuple(Step(st.name, st.title, _swap(st.value, mapping)) for st in part.steps),
+                   free_gains=_swap(part.free_gains, mapping),
+                   extra={k: _swap(v, mapping) for k, v in part.extra.items()})
 
 
 def separation_polynomial(A, B, C, K, L) -> sp.Expr:

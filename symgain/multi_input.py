@@ -140,7 +140,8 @@ def _solve(eqs, unknowns, nfree):
             if degree > 2:
                 raise DesignError(f"the gains of this pattern are roots of a polynomial of degree {degree} in "
                                   f"{rest[-1]} (lexicographic Groebner basis); closed form is not attempted: "
-                                  "change the pattern or give input_direction")
+                                  "change the pattern or give a direction (input_direction, output_direction "
+                                  "for an estimator)")
             sols = sp.solve(list(sub.exprs), rest, dict=True)
             if not sols:
                 raise DesignError("no gain of this pattern reaches the target (no solution of the "

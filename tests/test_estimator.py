@@ -166,3 +166,27 @@ def test_separation_property_symbolically():
                                  sp.Matrix(design.feedback.gain), sp.Matrix(design.estimator.gain))
     product = design.feedback.target.polynomial * design.estimator.target.polynomial
     assert sp.simplify(char - sp.expand(product)) == 0
+
+
+def two_output_model(values):
+    k, m = Parameter.declare("k", sign="positive", range=(1, 4)), Parameter.declare("m", sign="positive", range=(1, 2))
+    A = sp.Matrix([[0, 1, 0], [-k.symbol / m.symbol, 0, 1 / m.symbol], [0, 0, -1]])
+    return Model(name="two", parameters=(k, m), states=("x", "v", "f"), inputs=("u",), outputs=("x", "f"),
+                 A=A, B=sp.Matrix([[0], [0], [1]]), C=sp.Matrix([[1, 0, 0], [0, 0, 1]]),
+                 estimator=TargetSpec("poles", {"poles": (-4, -5, -6), **values}))
+
+
+def test_two_output_estimator_with_a_pattern_of_L():
+    """The pattern has the shape of L (states x outputs); symbols l_ij sit at L[i, j]."""
+    model = two_output_model({"pattern": [["*", "0"], ["*", "0"], ["*", "0"]]})
+    part = derive(model).estimator
+    names = [[str(e) for e in part.extra["gain_symbols"].row(i)] for i in range(3)]
+    assert names == [["l_11", "0"], ["l_21", "0"], ["l_31", "0"]]
+    assert part.extra["solution_kind"] == "unique"
+    assert check_design(derive(model), n_points=5).passed
+
+
+def test_estimator_pattern_of_the_wrong_shape():
+    model = two_output_model({"pattern": [["*", "0"], ["*", "0"]]})
+    with pytest.raises(Exception, match=r"pattern has 2 rows, expected 3 \(one per state\)"):
+        derive(model)

@@ -129,3 +129,33 @@ def test_bad_feedforward_exits_2_with_one_line(outputs, tables, message, tmp_pat
     assert main(["derive", str(path)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "feedforward" in err
+
+
+def test_generated_python_gives_unit_dc_gain(tmp_path):
+    """Through the emitted module: feedback_gain and feedforward_gain evaluated by the generated code."""
+    import importlib.util
+
+    from symgain.emit import emit
+
+    model = load_model(STAGE)
+    (path,) = emit(derive(model), ["python"], tmp_path, name="stage_gains")
+    spec = importlib.util.spec_from_file_location("stage_gains", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    for m, c, w in ((2.0, 1.0, 40.0), (3.5, 5.0, 100.0)):
+        K = module.feedback_gain(m=m, c=c, w=w)
+        N = module.feedforward_gain(m=m, c=c, w=w)
+        L = module.estimator_gain(m=m, c=c, w=w)
+        A = np.array([[0, 1], [0, -c / m]]); B = np.array([[0], [1 / m]]); C = np.array([[1.0, 0.0]])
+        num, den = signal.ss2tf(A - B @ K, B @ N, C, np.zeros((1, 1)))
+        assert abs(np.polyval(num[0], 0.0) / np.polyval(den, 0.0) - 1) < 1e-9
+        assert np.allclose(np.sort(np.linalg.eigvals(A - L @ C).real), [-5 * w, -4 * w])
+
+
+def test_check_catches_a_wrong_feedforward_gain():
+    from dataclasses import replace
+
+    design = derive(load_model(STAGE))
+    wrong = replace(design, feedforward=replace(design.feedforward, gain=sp.ImmutableMatrix(design.feedforward.gain * 1.01)))
+    report = check_design(wrong, n_points=3)
+    assert not report.passed and report.counts("feedforward")["fail"] == 3

@@ -154,3 +154,13 @@ def test_two_input_integral_with_a_pattern():
     assert part.free_gains  # eight gains, four equations: a family
     report = check_design(derive(model), n_points=6)
     assert report.passed and report.counts("integral")["ok"] == 6
+
+
+def test_check_catches_a_wrong_integral_gain():
+    from dataclasses import replace
+
+    design = derive(load_model(PLATEN))
+    ki = design.integral.extra["integral_gain"]
+    wrong = replace(design.integral, extra={**design.integral.extra, "integral_gain": ki * sp.Rational(11, 10)})
+    report = check_design(replace(design, integral=wrong), n_points=3)
+    assert not report.passed and report.counts("integral")["fail"] == 3

@@ -137,3 +137,26 @@ def test_bad_pattern_exits_2_naming_the_place(pattern, error, words, tmp_path, c
     assert main(["derive", str(path)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and words in err
+
+
+def test_several_branches_are_reported_through_derive():
+    w = Parameter.declare("w", sign="positive", range=(1, 2), role="design")
+    model = Model(name="twins", parameters=(w,), states=("x1", "x2"), inputs=("u1", "u2"), A=sp.zeros(2, 2),
+                  B=sp.eye(2), feedback=TargetSpec("poles", {"poles": (-w.symbol, -3 * w.symbol),
+                                                             "pattern": [["*", "0"], ["0", "*"]]}))
+    part = derive(model).feedback
+    assert part.extra["solution_kind"] == "branches"
+    branches = part.step("branches").value
+    assert {(b[0, 0], b[1, 1]) for b in branches} == {(w.symbol, 3 * w.symbol), (3 * w.symbol, w.symbol)}
+    assert any("2 branches" in n for n in part.notes)
+    closed_loop_matches(model, part)
+
+
+def test_check_catches_a_wrong_structured_gain():
+    from dataclasses import replace
+
+    design = derive(load_model(BOAT))
+    K = sp.Matrix(design.feedback.gain)
+    K[0, 1] = K[0, 1] * sp.Rational(21, 20)
+    report = check_design(replace(design, feedback=replace(design.feedback, gain=sp.ImmutableMatrix(K))), n_points=3)
+    assert not report.passed

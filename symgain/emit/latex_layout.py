@@ -44,12 +44,12 @@ class ReportPrinter(LatexPrinter):
             out = r"\mathit{" + match.group(1) + "}" + out[match.end():]
         return out
 
-    def _print_Pow(self, expr, rational=False):
+    def _print_Pow(self, expr):
         root = expr.exp.is_Rational and not expr.exp.is_Integer  # printed as a root: clear already
         if isinstance(expr.base, sp.Function) and expr.exp != -1 and not root:
             # (ln 20)^2, not ln(20)^2 that reads as ln(20^2)
             return r"\left(" + self._print(expr.base) + r"\right)^{" + self._print(expr.exp) + "}"
-        return super()._print_Pow(expr, rational=rational)
+        return super()._print_Pow(expr)
 
 
 _PRINTER = ReportPrinter({"ln_notation": True})  # \ln: natural logarithm, never read as base 10
