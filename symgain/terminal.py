@@ -23,7 +23,8 @@ __all__ = ["format_design", "format_check", "format_polynomial"]
 _ROW_COL = {  # which names label the rows and columns of each part's gain
     "feedback": ("inputs", "states"),
     "estimator": ("states", "outputs"),
-    "integral": ("inputs", "outputs"),
+    "integral": ("inputs", "states"),
+    "integral_gain": ("inputs", "outputs"),
     "feedforward": ("inputs", "outputs"),
 }
 
@@ -75,9 +76,10 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
             lines.append(f"  {part.symbol}[{rl[i]}, {cl[j]}] = {sp.sstr(part.gain[i, j])}")
     for key, value in part.extra.items():
         if isinstance(value, sp.MatrixBase) and key != "gain_symbols":
+            rl, cl = _labels(design, key, value.rows, value.cols)
             for i in range(value.rows):
                 for j in range(value.cols):
-                    lines.append(f"  {key}[{i + 1}, {j + 1}] = {sp.sstr(value[i, j])}")
+                    lines.append(f"  {key}[{rl[i]}, {cl[j]}] = {sp.sstr(value[i, j])}")
     if part.free_gains:
         lines.append("  free gains (not fixed by the target): " + ", ".join(map(str, part.free_gains)))
     if part.valid_when:

@@ -88,6 +88,9 @@ def same(got, want, symbols, rng) -> bool:
     if isinstance(want, sp.MatrixBase):
         return got.shape == want.shape and all(same(g, w, symbols, rng) for g, w in zip(got, want))
     got, want = sp.sympify(got), sp.sympify(want)
+    if want.atoms(sp.MatrixSymbol):  # a formula in whole matrices (N = ...): compared as scalars
+        names = {m.name: sp.Symbol(m.name) for m in want.atoms(sp.MatrixSymbol)}
+        want = sp.sympify(str(want), locals=names)  # our own printed string, not user text
     free = sorted(got.free_symbols | want.free_symbols, key=str)
     if not free:
         return abs(complex(got.evalf(30)) - complex(want.evalf(30))) <= 1e-12 * (1 + abs(complex(want.evalf(30))))

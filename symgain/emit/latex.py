@@ -46,7 +46,14 @@ _LHS = {  # left-hand sides of well-known steps
     "characteristic_polynomial": r"p_{\mathrm{cl}}(s)",
     "target_polynomial": r"p_{\mathrm{t}}(s)",
     "controllability_determinant": r"\Delta",
+    "observability_determinant": r"\Delta",
+    "closed_loop_determinant": r"\det A_{\mathrm{cl}}",
+    "steady_state_gain": r"G(0)",
+    "zero_at_origin_determinant": r"\Delta_{0}",
+    "input_direction": "f",
+    "separation": r"p_{\mathrm{all}}(s)",
 }
+_TUPLE_LABELS = {"augmented_plant": ("A_{a}", "B_{a}")}  # names of matrices given as a tuple
 _SIGN = {"positive": "$> 0$", "nonnegative": r"$\geq 0$", "nonzero": r"$\neq 0$", "real": "any real"}
 _PART_TITLES = {"feedback": "State feedback", "estimator": "State estimator",
                 "integral": "Integral action", "feedforward": "Reference feedforward"}
@@ -152,7 +159,8 @@ def _step(part: GainDesign, step: Step) -> list[str]:
                 for i in range(value.rows) for j in range(value.cols)]
         return out + _display(rows)
     if isinstance(value, sp.MatrixBase):
-        return out + _matrix_block(_LHS.get(step.name, part.symbol), value, key)
+        default = part.symbol if step.name == "direction_gain" else r"\mathrm{value}"
+        return out + _matrix_block(_LHS.get(step.name, default), value, key)
     if isinstance(value, tuple):
         if not value:
             return out + ["None: the declared signs of the parameters rule out every singular case."]
@@ -162,12 +170,13 @@ def _step(part: GainDesign, step: Step) -> list[str]:
                 label = f"s^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""
                 rows.append((f"{key}[{k}]", equation_lines(item.lhs, item.rhs, label)))
             elif isinstance(item, sp.MatrixBase):
+                name = (_TUPLE_LABELS.get(step.name, ()) + (None,) * len(value))[k] \
+                    or f"{part.symbol}^{{({k + 1})}}"
                 shown = matrix_tex(item)
                 if shown is not None:
-                    rows.append((f"{key}[{k}]", [f"{part.symbol}^{{({k + 1})}} &= {shown}"]))
+                    rows.append((f"{key}[{k}]", [f"{name} &= {shown}"]))
                 else:
-                    rows += [(f"{key}[{k}][{i}][{j}]", formula_lines(f"{part.symbol}^{{({k + 1})}}_{{{i + 1},{j + 1}}}",
-                                                                  item[i, j]))
+                    rows += [(f"{key}[{k}][{i}][{j}]", formula_lines(f"{name}_{{{i + 1},{j + 1}}}", item[i, j]))
                              for i in range(item.rows) for j in range(item.cols) if item[i, j] != 0]
             elif isinstance(item, sp.Ne):
                 rows.append((f"{key}[{k}]", formula_lines(tex(item.lhs), item.rhs, r"\neq")))
@@ -177,6 +186,8 @@ def _step(part: GainDesign, step: Step) -> list[str]:
                  "(right), power by power of $s$:",
                  "valid_when": "The formulas hold when:"}.get(step.name, "")
         return out + ([intro] if intro else []) + _display(rows)
+    if isinstance(value, sp.Eq):
+        return out + _display([(key, formula_lines(tex(value.lhs), value.rhs))])
     if isinstance(value, sp.Basic):
         lhs = _LHS.get(step.name, r"\mathrm{value}")
         return out + _display([(key, formula_lines(lhs, value))])
