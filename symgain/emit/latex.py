@@ -114,7 +114,8 @@ def _plant(design: Design) -> list[str]:
            f"inputs ${', '.join(tex(sp.Symbol(u)) for u in model.inputs)}$"
            + (f"; outputs ${', '.join(tex(sp.Symbol(y)) for y in model.outputs)}$" if model.outputs else "")
            + r". The plant is $\dot x = A x + B u$" + (", $y = C x$" if model.C is not None else "")
-           + ", with the parameters below." + (f" Source: \\texttt{{{text(model.source)}}}." if model.source else "")]
+           + ", with the parameters below." + (" Source: \\texttt{" + text(model.source).replace("/", "/\\allowbreak{}") + "}."
+              if model.source else "")]
     out += _parameter_table(design)
     mats = [(n, getattr(model, n)) for n in ("A", "B", "C", "D") if getattr(model, n) is not None]
     shown = [(n, matrix_tex(m)) for n, m in mats]
