@@ -160,8 +160,10 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
 
 def _parameters(table: Any, file: str) -> tuple[Parameter, ...]:
     where = Where(file, "parameters")
-    if not isinstance(table, dict) or not table:
-        raise ModelError("[parameters] must declare at least one parameter", where=where)
+    if table is None:
+        return ()  # a purely numeric plant needs no parameters
+    if not isinstance(table, dict):
+        raise ModelError("[parameters] must be a table of declarations", where=where)
     from .expressions import RESERVED_NAMES
 
     params = []

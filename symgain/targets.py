@@ -107,7 +107,8 @@ def resolve_target(spec: TargetSpec, order: int) -> Target:
     if spec.kind == "poles":
         poles = tuple(v["poles"])
         if len(poles) != order:
-            raise ModelError(f"{len(poles)} poles given but the closed loop has {order}", where=where)
+            raise ModelError(f"{len(poles)} poles given but the closed loop has {order}",
+                             where=where.child("poles") if where and where.key else where)
         return Target(poles_polynomial(poles, where), poles, "explicit poles")
     if spec.kind == "polynomial":
         expr = sp.expand(v["polynomial"])

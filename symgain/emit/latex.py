@@ -65,6 +65,7 @@ PREAMBLE = r"""\documentclass[10pt,a4paper]{article}
 \usepackage{amsmath,amssymb}
 \allowdisplaybreaks
 \setlength{\parindent}{0pt}
+\setlength{\emergencystretch}{3em}
 \setlength{\parskip}{0.5em}
 """
 
