@@ -309,8 +309,11 @@ def _usable(expr) -> bool:
         return False
     # sympy may rewrite an allowed function into one outside the syntax (atan(I*m) -> I*atanh(m))
     allowed = {"sqrt", "exp", "log", "sin", "cos", "tan", "sinh", "cosh", "tanh", "atan", "Abs"}
-    if any(type(f).__name__ not in allowed for f in expr.atoms(sympy.Function)):
-        return False
+    plain = (sympy.Add, sympy.Mul, sympy.Pow, sympy.Symbol, sympy.Rational, sympy.NumberSymbol,
+             sympy.core.numbers.ImaginaryUnit)
+    for node in sympy.preorder_traversal(expr):  # e.g. atan(zoo) -> AccumBounds(-pi/2, pi/2)
+        if not isinstance(node, plain) and type(node).__name__ not in allowed:
+            return False
     return all(abs(p.exp) <= 1000 for p in expr.atoms(sympy.Pow) if p.exp.is_Rational)
 
 
