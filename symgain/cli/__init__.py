@@ -22,6 +22,9 @@ EPILOG = """examples:
   symgain derive examples/greenhouse_cart.toml
   symgain derive examples/greenhouse_cart.toml --json
   symgain check examples/greenhouse_cart.toml --points 50 --seed 3
+  symgain emit examples/greenhouse_cart.toml --to python --to c --to latex -o build
+  symgain schedule examples/greenhouse_cart.toml --over m=15:90:16
+  symgain robust symgain/data/demo_conveyor.toml --mismatch m tau
 """
 
 

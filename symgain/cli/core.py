@@ -80,5 +80,6 @@ def run_demo(args) -> int:
     code = _print_check(design, args)
     print("\nNext: write your own model file (see README.md) and run 'symgain derive FILE' and "
           "'symgain check FILE'.")
-    print("Gains from a linear model must be validated in simulation and on the machine with safe limits.")
+    print("Gains from a linear model must be validated in simulation and on the machine with safe limits;")
+    print("local codes, safety standards and licensed practice take precedence.")
     return code

@@ -171,7 +171,8 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
              " * Name mangling: a parameter whose name is a C keyword, a <math.h> name or the name",
              " * of the matrix argument gets '_p' appended (int -> int_p).",
              " * Gains from a linear model must be validated in simulation and on the machine",
-             " * with safe limits. */"]
+             " * with safe limits; local codes, safety standards and licensed practice take",
+             " * precedence. */"]
     header = intro + [f"#ifndef {guard}", f"#define {guard}", ""]
     source = intro + ["#include <math.h>", f'#include "{prefix}.h"', ""]
     for fn in design_functions(design):

@@ -38,7 +38,8 @@ CAUTION = ("These gains come from a linear model and hold only under the conditi
            "Before use on a machine, validate them in simulation (including actuator limits, delays "
            "and the nonlinear plant) and commission them on the machine with safe limits, reduced "
            "power and an emergency stop at hand. The numeric cross-check confirms the algebra, not "
-           "the model.")
+           "the model. Local codes, safety standards and licensed engineering practice take precedence "
+           "over this report.")
 
 _LHS = {  # left-hand sides of well-known steps
     "closed_loop_matrix": r"A_{\mathrm{cl}}",
