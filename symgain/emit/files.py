@@ -42,14 +42,18 @@ def prepare_folder(folder) -> Path:
     return folder
 
 
-def write_atomic(path, text: str) -> Path:
-    """Write ``text`` to ``path`` through a temporary file in the same folder and a rename."""
+def write_atomic(path, text: str | bytes) -> Path:
+    """Write text (or bytes) to ``path`` through a temporary file in the same folder and a rename."""
     path = Path(path)
     fd = None
     tmp = None
+    binary = isinstance(text, bytes)
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # an ordinary new file's permissions, not mkstemp's 0600
+        with (os.fdopen(fd, "wb") if binary else os.fdopen(fd, "w", encoding="utf-8", newline="\n")) as handle:
             fd = None
             handle.write(text)
             handle.flush()
