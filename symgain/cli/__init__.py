@@ -56,6 +56,9 @@ def main(argv: list[str] | None = None) -> int:
             raise
         print(f"symgain: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into a reader that stopped early (| head)
+        sys.stderr.close()
+        return 0
     except Exception as exc:  # a bug of ours, not the user's input
         if args.debug:
             raise
