@@ -25,10 +25,10 @@ import sympy as sp
 
 from .design import Design
 
-__all__ = ["sensitivity_table", "relative_sensitivities", "sensitivity_matrices"]
+__all__ = ["sensitivity_table", "relative_sensitivities", "sensitivity_matrices", "small_expression"]
 
 
-def _small(expr: sp.Expr, limit: int = 300) -> bool:
+def small_expression(expr: sp.Expr, limit: int = 300) -> bool:
     """True when the expression tree has at most ``limit`` nodes (stops counting early)."""
     for count, _ in enumerate(sp.preorder_traversal(expr)):
         if count > limit:
@@ -37,7 +37,7 @@ def _small(expr: sp.Expr, limit: int = 300) -> bool:
 
 
 def _tidy(expr: sp.Expr) -> sp.Expr:
-    if expr == 0 or not _small(expr):
+    if expr == 0 or not small_expression(expr):
         return expr
     return sp.factor(sp.cancel(expr))
 

@@ -1,6 +1,7 @@
 """The LaTeX report: every formula read back with latex2sympy2 equals the design's expression
 (numerically at random points, symbolically for small ones), and the document compiles with
 pdflatex without errors and without any line running into the margin."""
+from pathlib import Path
 import re
 import shutil
 import subprocess
@@ -73,6 +74,10 @@ def expected(design, key: str):
         part = getattr(design, path[0])
         if path[1] == "extra":
             value = part.extra[path[2]]
+        elif path[1] == "sensitivity":  # dK[i, j]/dp, from the design's sensitivity table
+            from symgain.sensitivity import sensitivity_table
+
+            return sensitivity_table(design)[path[0]][(indices[0], indices[1], path[2])]
         elif path[1] == "target_poles":
             value = part.target.poles
         else:
@@ -170,3 +175,19 @@ def test_report_compiles_without_overfull_lines(path, tmp_path):
     assert not re.search(r"^! ", log, re.M), log
     overfull = re.findall(r"Overfull \\hbox \((\d+\.\d+)pt too wide\)", log)
     assert not overfull, f"lines into the margin: {overfull}"
+
+
+def test_report_lists_gain_sensitivities():
+    """Issue 6: the partial derivatives of the gains appear in the report, one keyed formula each."""
+    from symgain.emit.latex import latex_report
+    from symgain.model_file import load_model
+    from symgain.design import derive
+
+    design = derive(load_model(Path(__file__).resolve().parents[1] / "examples" / "greenhouse_cart.toml"))
+    report = latex_report(design, n_points=2)
+    assert "Sensitivity of the gains" in report
+    keys = [line.rsplit("%@ ", 1)[1] for line in report.splitlines() if "%@ feedback.sensitivity." in line]
+    # K = [2 m w^2, 3 m w - c]: nonzero derivatives d/dm (2), d/dc (1), d/dw (2) -> 5 formulas
+    assert sorted(keys) == sorted(["feedback.sensitivity.m[0][0]", "feedback.sensitivity.m[0][1]",
+                                   "feedback.sensitivity.c[0][1]", "feedback.sensitivity.w[0][0]",
+                                   "feedback.sensitivity.w[0][1]"])

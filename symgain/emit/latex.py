@@ -30,6 +30,7 @@ import sympy as sp
 
 from ..check import check_design
 from ..design import Design, GainDesign, Step
+from ..sensitivity import sensitivity_table, small_expression
 from .latex_layout import equation_lines, formula_lines, matrix_tex, tex, text
 
 __all__ = ["latex_report", "CAUTION"]
@@ -207,7 +208,27 @@ def _extras(part: GainDesign) -> list[str]:
     return out
 
 
-def _part(design: Design, part: GainDesign) -> list[str]:
+def _sensitivity(design: Design, part: GainDesign, table) -> list[str]:
+    """Partial derivatives of each gain entry with respect to each parameter (closed form)."""
+    rows, omitted = [], 0
+    for (i, j, name), deriv in table.items():
+        if deriv == 0:
+            continue
+        if not small_expression(deriv):
+            omitted += 1
+            continue
+        sym = tex(design.model.parameter(name).symbol)
+        lhs = rf"\frac{{\partial {part.symbol}_{{{i + 1},{j + 1}}}}}{{\partial {sym}}}"
+        rows.append((f"{part.part}.sensitivity.{name}[{i}][{j}]", formula_lines(lhs, deriv)))
+    out = [r"\subsection{Sensitivity of the gains}",
+           "Partial derivatives of the gain entries with respect to the parameters "
+           "(entries not listed are zero"
+           + (f"; {omitted} longer ones are omitted here and listed in the JSON result" if omitted else "")
+           + ")."]
+    return out + (_display(rows) if rows else [])
+
+
+def _part(design: Design, part: GainDesign, sensitivity=None) -> list[str]:
     title = _PART_TITLES.get(part.part, part.part.capitalize())
     out = [r"\section{" + f"{title}: gain ${part.symbol}$" + "}"]
     rows, cols = _ROLE_NAMES.get(part.part, (None, None))
@@ -217,6 +238,8 @@ def _part(design: Design, part: GainDesign) -> list[str]:
     for step in part.steps:
         out += _step(part, step)
     out += _extras(part)
+    if sensitivity is not None:
+        out += _sensitivity(design, part, sensitivity[part.part])
     if part.free_gains:
         out.append("Free gains left undetermined by the target: $"
                    + ", ".join(tex(s) for s in part.free_gains) + "$.")
@@ -263,8 +286,9 @@ def latex_report(design: Design, n_points: int = 10, seed: int = 0) -> str:
            "where they hold, and checks them numerically. Symbols in formulas are the parameters "
            "of the table in Section 1; $k_i$ and similar are the unknown gains before the solution."]
     out += _plant(design)
+    sensitivity = sensitivity_table(design)
     for part in design.parts():
-        out += _part(design, part)
+        out += _part(design, part, sensitivity if not part.free_gains else None)
     out += _check(design, n_points, seed)
     out += [r"\section{Safety caution}", text(CAUTION),
             r"\section*{Review}", "Reviewed and accepted by: "
