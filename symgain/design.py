@@ -91,6 +91,30 @@ class Design:
         return design_markdown(self)
 
 
+GAIN_AXES = {  # which model names label the rows and columns of each gain matrix
+    "feedback": ("inputs", "states"),
+    "estimator": ("states", "outputs"),
+    "integral": ("inputs", "states"),
+    "integral_gain": ("inputs", "outputs"),
+    "feedforward": ("inputs", "outputs"),
+}
+
+
+def gain_labels(model: Model, key: str, rows: int, cols: int) -> tuple[list[str], list[str]]:
+    """Row and column names of a gain matrix (a part name or an extra key such as integral_gain).
+
+    Falls back to 1, 2, ... where the names do not fit the shape.
+    """
+    rnames, cnames = GAIN_AXES.get(key, (None, None))
+    rl = list(getattr(model, rnames, ())) if rnames else []
+    cl = list(getattr(model, cnames, ())) if cnames else []
+    if len(rl) != rows:
+        rl = [str(i + 1) for i in range(rows)]
+    if len(cl) != cols:
+        cl = [str(j + 1) for j in range(cols)]
+    return rl, cl
+
+
 def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no input moves") -> str:
     """Left null vectors of the controllability matrix, as combinations of states."""
     n = A.rows
@@ -101,9 +125,8 @@ def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no 
         return ""
     combos = []
     for v in vectors[:3]:
-        terms = [f"({sp.simplify(c)})*{s}" if len(sp.Add.make_args(c)) > 1 else f"{sp.simplify(c)}*{s}"
-                 for c, s in zip(v, states) if sp.simplify(c) != 0]
-        combos.append(" + ".join(terms).replace("1*", "") if terms else "0")
+        combo = sum((sp.simplify(c) * sp.Symbol(s) for c, s in zip(v, states)), sp.Integer(0))
+        combos.append(sp.sstr(combo))
     return f"; {lead} " + ", nor ".join(combos) if combos else ""
 
 

@@ -15,29 +15,13 @@ from __future__ import annotations
 import sympy as sp
 
 from .check import CheckReport
-from .design import Design, GainDesign
+from .design import Design, GainDesign, gain_labels
 from .model import S
 
 __all__ = ["format_design", "format_check", "format_polynomial"]
 
-_ROW_COL = {  # which names label the rows and columns of each part's gain
-    "feedback": ("inputs", "states"),
-    "estimator": ("states", "outputs"),
-    "integral": ("inputs", "states"),
-    "integral_gain": ("inputs", "outputs"),
-    "feedforward": ("inputs", "outputs"),
-}
 
 
-def _labels(design: Design, part: str, rows: int, cols: int):
-    rnames, cnames = _ROW_COL.get(part, (None, None))
-    rl = list(getattr(design.model, rnames, ())) if rnames else []
-    cl = list(getattr(design.model, cnames, ())) if cnames else []
-    if len(rl) != rows:
-        rl = [str(i + 1) for i in range(rows)]
-    if len(cl) != cols:
-        cl = [str(j + 1) for j in range(cols)]
-    return rl, cl
 
 
 def format_polynomial(poly: sp.Expr, s: sp.Symbol = S) -> str:
@@ -70,13 +54,13 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
         lines.append(f"  target polynomial: {format_polynomial(part.target.polynomial)}")
     for note in part.notes:
         lines.append(f"  note: {note}")
-    rl, cl = _labels(design, part.part, part.gain.rows, part.gain.cols)
+    rl, cl = gain_labels(design.model, part.part, part.gain.rows, part.gain.cols)
     for i in range(part.gain.rows):
         for j in range(part.gain.cols):
             lines.append(f"  {part.symbol}[{rl[i]}, {cl[j]}] = {sp.sstr(part.gain[i, j])}")
     for key, value in part.extra.items():
         if isinstance(value, sp.MatrixBase) and key != "gain_symbols":
-            rl, cl = _labels(design, key, value.rows, value.cols)
+            rl, cl = gain_labels(design.model, key, value.rows, value.cols)
             for i in range(value.rows):
                 for j in range(value.cols):
                     lines.append(f"  {key}[{rl[i]}, {cl[j]}] = {sp.sstr(value[i, j])}")

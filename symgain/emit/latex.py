@@ -29,7 +29,7 @@ from __future__ import annotations
 import sympy as sp
 
 from ..check import check_design
-from ..design import Design, GainDesign, Step
+from ..design import GAIN_AXES, Design, GainDesign, Step
 from ..sensitivity import sensitivity_table, small_expression
 from .latex_layout import equation_lines, formula_lines, matrix_tex, tex, text
 
@@ -59,8 +59,6 @@ _TUPLE_LABELS = {"augmented_plant": ("A_{a}", "B_{a}")}  # names of matrices giv
 _SIGN = {"positive": "$> 0$", "nonnegative": r"$\geq 0$", "nonzero": r"$\neq 0$", "real": "any real"}
 _PART_TITLES = {"feedback": "State feedback", "estimator": "State estimator",
                 "integral": "Integral action", "feedforward": "Reference feedforward"}
-_ROLE_NAMES = {"feedback": ("inputs", "states"), "estimator": ("states", "outputs"),
-               "integral": ("inputs", "outputs"), "feedforward": ("inputs", "outputs")}
 
 PREAMBLE = r"""\documentclass[10pt,a4paper]{article}
 \usepackage[margin=2cm]{geometry}
@@ -231,7 +229,7 @@ def _sensitivity(design: Design, part: GainDesign, table) -> list[str]:
 def _part(design: Design, part: GainDesign, sensitivity=None) -> list[str]:
     title = _PART_TITLES.get(part.part, part.part.capitalize())
     out = [r"\section{" + f"{title}: gain ${part.symbol}$" + "}"]
-    rows, cols = _ROLE_NAMES.get(part.part, (None, None))
+    rows, cols = GAIN_AXES.get(part.part, (None, None))
     out.append(f"${part.symbol}$ is {part.gain.rows}$\\times${part.gain.cols}"
                + (f" (rows: {rows}, columns: {cols})" if rows else "") + ".")
     out += _target(part)

@@ -29,17 +29,11 @@ from typing import Callable
 import numpy as np
 import sympy as sp
 
-from ..design import Design
+from ..design import Design, gain_labels
 from ..errors import DesignError, ModelError, Where
 
 __all__ = ["GainEntry", "gain_entries", "gain_functions", "GainEvaluator"]
 
-_ROW_COL = {  # which names label the rows and columns of each part's gain
-    "feedback": ("inputs", "states"),
-    "estimator": ("states", "outputs"),
-    "integral": ("inputs", "outputs"),
-    "feedforward": ("inputs", "outputs"),
-}
 _EXTRA_SYMBOL = {"integral_gain": "Ki"}
 
 
@@ -56,27 +50,18 @@ class GainEntry:
     expr: sp.Expr
 
 
-def _labels(model, part: str, rows: int, cols: int):
-    rnames, cnames = _ROW_COL.get(part, (None, None))
-    rl = list(getattr(model, rnames, ())) if rnames else []
-    cl = list(getattr(model, cnames, ())) if cnames else []
-    if len(rl) != rows:
-        rl = [str(i + 1) for i in range(rows)]
-    if len(cl) != cols:
-        cl = [str(j + 1) for j in range(cols)]
-    return rl, cl
 
 
 def gain_entries(design: Design) -> list[GainEntry]:
     """Every scalar gain of every part (the main gain, then extra matrices such as Ki)."""
     out: list[GainEntry] = []
     for part in design.parts():
-        mats = [(part.symbol, part.gain)]
+        mats = [(part.symbol, part.part, part.gain)]
         for key, value in part.extra.items():
             if key != "gain_symbols" and isinstance(value, sp.MatrixBase):
-                mats.append((_EXTRA_SYMBOL.get(key, key), value))
-        for symbol, mat in mats:
-            rl, cl = _labels(design.model, part.part, mat.rows, mat.cols)
+                mats.append((_EXTRA_SYMBOL.get(key, key), key, value))
+        for symbol, key, mat in mats:
+            rl, cl = gain_labels(design.model, key, mat.rows, mat.cols)
             for i in range(mat.rows):
                 for j in range(mat.cols):
                     ident = re.sub(r"\W", "_", f"{symbol}_{rl[i]}_{cl[j]}")
