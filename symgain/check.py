@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import warnings
 import zlib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import scipy.signal
@@ -245,4 +245,11 @@ def check_design(design: Design, n_points: int = 20, seed: int = 0,
         if part.target is None and part.part != "feedforward":
             continue
         report.points[part.part] = _check_part(design.model, part, points, tolerance, seed, design.feedback)
+        shown = part.selected_branch or 1
+        for b in part.branches:  # every other solution branch is checked on its own
+            if b.index == shown:
+                continue
+            alt = replace(part, gain=b.gain, valid_when=b.valid_when, extra={**part.extra, **b.extra})
+            report.points[f"{part.part} branch {b.index}"] = _check_part(design.model, alt, points, tolerance,
+                                                                       seed, design.feedback)
     return report

@@ -31,7 +31,7 @@ from .placement import place_single_input
 from .targets import Target, resolve_target
 from .validity import nonzero_conditions
 
-__all__ = ["Step", "GainDesign", "Design", "derive", "design_gain"]
+__all__ = ["Step", "Branch", "GainDesign", "Design", "derive", "design_gain"]
 
 
 @dataclass(frozen=True)
@@ -41,6 +41,22 @@ class Step:
     name: str
     title: str
     value: Any
+
+
+@dataclass(frozen=True)
+class Branch:
+    """One solution branch of a design with several inputs (see :mod:`symgain.polynomial_systems`).
+
+    ``gain`` and ``extra`` (e.g. ``integral_gain``) are the matrices of this branch; ``real_when``
+    lists the conditions under which its formulas are real (empty: real wherever they hold).
+    """
+
+    index: int  # 1-based, as reported
+    gain: sp.ImmutableMatrix
+    valid_when: tuple = ()
+    real_when: tuple = ()
+    extra: dict = field(default_factory=dict)
+    note: str = ""
 
 
 @dataclass(frozen=True)
@@ -57,6 +73,8 @@ class GainDesign:
     free_gains: tuple[sp.Symbol, ...] = ()
     notes: tuple[str, ...] = ()
     extra: dict = field(default_factory=dict)  # more matrices of the part, e.g. integral_gain
+    branches: tuple[Branch, ...] = ()  # every solution branch when there are several (gain = the selected one)
+    selected_branch: int | None = None  # the branch the model selects (key branch), None: all are emitted
 
     def step(self, name: str) -> Step:
         for st in self.steps:

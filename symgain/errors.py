@@ -10,7 +10,9 @@ found, and renders as one line:
 >>> isinstance(err, ValueError)
 True
 
-The command line prints ``str(err)`` and exits with code 2 for input errors.
+The command line prints ``str(err)`` and exits with code 2 for input errors, and
+with code 4 for a :class:`ClosedFormLimitation` (a well-posed design that has
+no readable closed form).
 """
 from __future__ import annotations
 
@@ -24,6 +26,7 @@ __all__ = [
     "DesignError",
     "NotControllableError",
     "OutputError",
+    "ClosedFormLimitation",
 ]
 
 
@@ -96,3 +99,12 @@ class NotControllableError(DesignError):
 
 class OutputError(SymgainError):
     """An output file or folder cannot be written."""
+
+
+class ClosedFormLimitation(SymgainError):
+    """The model is well posed but its design has no (readable) closed form; CLI exit code 4.
+
+    >>> err = ClosedFormLimitation("the gain k_24 is a root of a degree-5 factor")
+    >>> isinstance(err, DesignError), str(err)
+    (False, 'the gain k_24 is a root of a degree-5 factor')
+    """

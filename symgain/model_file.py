@@ -56,7 +56,9 @@ TARGET_KEYS = {
     "damping": ("damping", "natural_frequency"),
     "settling": ("settling_time", "overshoot"),
 }
-OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "z_poles", "input_direction", "output_direction"}
+OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "z_poles", "input_direction", "output_direction", "branch",
+                        "method", "target_split"}
+METHODS = ("canonical", "direction")  # design routes for several inputs (key method)
 
 
 def load_model(path: str | Path) -> Model:
@@ -146,9 +148,18 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
         if kind not in ("damping", "settling"):
             raise ModelError("extra_poles goes with damping or settling_time targets", where=where)
         values["extra_poles"] = _expr_list(table["extra_poles"], symbols, where.child("extra_poles"))
-    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.multi_input
+    for key in ("pattern", "input_direction", "output_direction", "branch"):  # read by symgain.multi_input
         if key in table:
             values[key] = table[key]
+    if "method" in table:
+        if table["method"] not in METHODS:
+            raise ModelError(f"unknown method {table['method']!r}; choose one of {', '.join(METHODS)}",
+                             where=where.child("method"))
+        values["method"] = table["method"]
+    if "target_split" in table:
+        from .target_split import parse_target_split
+
+        values["target_split"] = parse_target_split(table["target_split"], symbols, where.child("target_split"))
     if kind == "prototype":
         from .prototypes import PROTOTYPES
 

@@ -37,6 +37,7 @@ from .errors import DesignError, ModelError, Where
 from .expressions import parse_expression
 from .model import S, TargetSpec
 from .placement import gain_symbols
+from .polynomial_systems import BranchSolution, SolvedSystem, solve_branches
 from .targets import resolve_target
 from .validity import nonzero_conditions
 
@@ -102,6 +103,9 @@ class StructuredPlacement:
     branches: tuple[sp.Matrix, ...]  # one gain per branch (free gains left as symbols)
     free: tuple[sp.Symbol, ...]
     method: str
+    real_when: tuple[tuple, ...] = ()  # per branch: conditions for it to be real
+    branch_notes: tuple[str, ...] = ()
+    complex_only: int = 0  # branches left out: complex for every parameter value
 
 
 def _linear_in(eqs, xs) -> bool:
@@ -123,7 +127,8 @@ def _solve(eqs, unknowns, nfree):
             (values,) = tuple(sol)
             undetermined = set().union(*[v.free_symbols for v in values]) & set(rest)
             free = tuple(sorted(set(free) | undetermined, key=unknowns.index))
-            return ("family" if free else "unique", [dict(zip(rest, values))], free,
+            solved = SolvedSystem((BranchSolution(dict(zip(rest, values))),))
+            return ("family" if free else "unique", solved, free,
                     "linear in " + ", ".join(map(str, rest)) +
                     (f" once {', '.join(map(str, free))} {'is' if len(free) == 1 else 'are'} left free" if free else ""))
     basis = sp.groebner(eqs, *unknowns, order="lex")
@@ -136,18 +141,12 @@ def _solve(eqs, unknowns, nfree):
             sub = sp.groebner(list(basis.exprs), *rest, order="lex") if free else basis
             if not sub.is_zero_dimensional:
                 continue
-            degree = max(sp.Poly(g, *rest).degree(rest[-1]) for g in sub.exprs)
-            if degree > 2:
-                raise DesignError(f"the gains of this pattern are roots of a polynomial of degree {degree} in "
-                                  f"{rest[-1]} (lexicographic Groebner basis); closed form is not attempted: "
-                                  "change the pattern or give a direction (input_direction, output_direction "
-                                  "for an estimator)")
-            sols = sp.solve(list(sub.exprs), rest, dict=True)
-            if not sols:
-                raise DesignError("no gain of this pattern reaches the target (no solution of the "
-                                  "Groebner basis)")
-            kind = "branches" if len(sols) > 1 else ("family" if free else "unique")
-            return kind, sols, tuple(free), "lexicographic Groebner basis, then back substitution"
+            solved = solve_branches(list(sub.exprs), rest)
+            kind = "branches" if len(solved.branches) > 1 else ("family" if free else "unique")
+            method = ("lexicographic Groebner basis; eliminating polynomial"
+                      + "".join(f" {sp.sstr(g)} in {x}" for x, g in solved.factors[:1])
+                      + " factored over the parameters' field, each factor solved, then back substitution")
+            return kind, solved, tuple(free), method
     raise DesignError("could not separate the coefficient equations into free and determined gains")
 
 
@@ -172,21 +171,15 @@ def place_structured(A: sp.Matrix, B: sp.Matrix, pattern: list[list], target: sp
     if not unknowns:
         raise DesignError("the pattern has no free gain '*'")
     if not numers:
-        kind, sols, free, method = "family", [{}], unknowns, "the target holds for every gain"
+        kind, solved, free, method = ("family", SolvedSystem((BranchSolution({}),)), unknowns,
+                                      "the target holds for every gain")
     else:
-        kind, sols, free, method = _solve(numers, list(unknowns), max(0, len(unknowns) - len(numers)))
-    branches = tuple(sp.Matrix(K.xreplace({k: sp.factor(v) for k, v in sol.items()})) for sol in sols)
-    return StructuredPlacement(K, unknowns, closed, equations, kind, branches, free, method)
-
-
-def _conditions(gains: sp.Matrix) -> tuple:
-    dens, radicands = [], []
-    for e in gains:
-        dens.append(sp.denom(sp.together(e)))
-        for p in e.atoms(sp.Pow):
-            if p.exp == sp.Rational(1, 2) and not p.base.is_nonnegative:
-                radicands.append(sp.factor(p.base))
-    return nonzero_conditions(dens) + tuple(dict.fromkeys(sp.Ge(r, 0) for r in radicands))
+        kind, solved, free, method = _solve(numers, list(unknowns), max(0, len(unknowns) - len(numers)))
+    branches = tuple(sp.Matrix(K.xreplace(dict(b.values)))
+                     for b in solved.branches)
+    return StructuredPlacement(K, unknowns, closed, equations, kind, branches, free, method,
+                               tuple(b.real_when for b in solved.branches),
+                               tuple(b.note for b in solved.branches), solved.complex_only)
 
 
 def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symbol: str,
@@ -210,28 +203,81 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
             res = place_structured(A, B, pattern, target.polynomial, letter=symbol.lower(), avoid=avoid)
         except DesignError as exc:
             raise DesignError(exc.what if spec.where.key else f"{part}: {exc.what}", where=pw) from None
-        gain = res.branches[0]
-        valid = _conditions(gain)
-        counts = {"unique": "one solution", "family": f"a family with free gain{'s' if len(res.free) > 1 else ''} "
-                  + ", ".join(map(str, res.free)), "branches": f"{len(res.branches)} branches (branch 1 shown)"}
-        notes = (f"structured gain from the pattern: {counts[res.kind]}; solved {res.method}",
-                 *target.notes)
-        steps = (
-            Step("closed_loop_matrix", f"closed-loop matrix A - B {symbol}", sp.Matrix(A - B * res.gain_symbols)),
-            Step("characteristic_polynomial", f"det(sI - A + B {symbol})", res.closed_loop_polynomial),
-            Step("target_polynomial", "target polynomial", target.polynomial),
-            Step("coefficient_equations", "coefficients matched power by power (polynomial equations)",
-                 res.equations),
-            Step("solution", f"gain {symbol}", gain),
-            *([Step("branches", "every solution branch", res.branches)] if len(res.branches) > 1 else []),
-            Step("valid_when", "conditions for the formulas to hold", valid),
-        )
-        return GainDesign(part=part, symbol=symbol, gain=sp.ImmutableMatrix(gain), valid_when=valid,
-                          target=target, closed_loop_polynomial=res.closed_loop_polynomial, steps=steps,
-                          free_gains=tuple(res.free), notes=notes,
-                          extra={"gain_symbols": res.gain_symbols, "solution_kind": res.kind})
+        return _structured_design(A, B, spec, target, res, part=part, symbol=symbol, GainDesign=GainDesign,
+                                  Step=Step)
+    method = spec.values.get("method")
+    if method == "canonical":
+        from .canonical_form import design_canonical
+
+        return design_canonical(A, B, spec, target, part=part, symbol=symbol, states=states, avoid=avoid,
+                                word=word)
+    if spec.values.get(_direction_key(word)) is None and method != "direction":
+        from .decoupled import design_blocks, plant_blocks
+
+        blocks = plant_blocks(A, B)
+        if len(blocks) > 1:
+            return design_blocks(A, B, spec, target, blocks, part=part, symbol=symbol, states=states,
+                                 inputs=inputs, avoid=avoid, symbols=symbols, word=word)
     return _design_by_direction(A, B, spec, target, part=part, symbol=symbol, states=states, inputs=inputs,
                                 avoid=avoid, symbols=symbols, word=word, design_gain=design_gain, Step=Step)
+
+
+def _direction_key(word: str) -> str:
+    return "output_direction" if word == "observable" else "input_direction"
+
+
+def selected_branch(spec: TargetSpec, count: int) -> int | None:
+    """The 1-based branch the model selects with ``branch = N`` (None: every branch is emitted).
+
+    >>> selected_branch(TargetSpec("poles", {"poles": (-1,), "branch": 2}), 3)
+    2
+    """
+    raw = spec.values.get("branch")
+    if raw is None or raw == "all":
+        return None
+    if isinstance(raw, bool) or not isinstance(raw, int) or not 1 <= raw <= count:
+        raise ModelError(f"branch must be \"all\" or a branch number from 1 to {count}, found {raw!r}",
+                         where=spec.where.child("branch"))
+    return raw
+
+
+def _structured_design(A, B, spec, target, res, *, part, symbol, GainDesign, Step):
+    from .design import Branch
+
+    branches = []
+    for k, (gain, real) in enumerate(zip(res.branches, res.real_when or ((),) * len(res.branches)), start=1):
+        dens = [sp.denom(sp.together(e)) for e in gain]
+        valid = tuple(dict.fromkeys((*nonzero_conditions(dens), *real)))
+        note = res.branch_notes[k - 1] if res.branch_notes else ""
+        branches.append(Branch(k, sp.ImmutableMatrix(gain), valid, tuple(real), {}, note))
+    chosen = selected_branch(spec, len(branches)) if len(branches) > 1 else None
+    shown = branches[(chosen or 1) - 1]
+    dropped = (f"; {res.complex_only} more complex for every parameter value, left out"
+               if res.complex_only else "")
+    counts = {"unique": "one solution", "family": f"a family with free gain{'s' if len(res.free) > 1 else ''} "
+              + ", ".join(map(str, res.free)),
+              "branches": f"{len(branches)} real branches{dropped} (branch {shown.index} "
+              + ("selected by the model" if chosen else "shown; every branch is emitted") + ")"}
+    notes = (f"structured gain from the pattern: {counts[res.kind]}; solved {res.method}", *target.notes)
+    if res.kind != "branches" and dropped:
+        notes = (notes[0] + dropped, *notes[1:])
+    steps = (
+        Step("closed_loop_matrix", f"closed-loop matrix A - B {symbol}", sp.Matrix(A - B * res.gain_symbols)),
+        Step("characteristic_polynomial", f"det(sI - A + B {symbol})", res.closed_loop_polynomial),
+        Step("target_polynomial", "target polynomial", target.polynomial),
+        Step("coefficient_equations", "coefficients matched power by power (polynomial equations)",
+             res.equations),
+        Step("solution", f"gain {symbol}" + (f" (branch {shown.index})" if len(branches) > 1 else ""),
+             sp.Matrix(shown.gain)),
+        *([Step("branches", "every real solution branch", res.branches)] if len(branches) > 1 else []),
+        Step("valid_when", "conditions for the formulas to hold", shown.valid_when),
+    )
+    return GainDesign(part=part, symbol=symbol, gain=shown.gain, valid_when=shown.valid_when,
+                      target=target, closed_loop_polynomial=res.closed_loop_polynomial, steps=steps,
+                      free_gains=tuple(res.free), notes=notes,
+                      extra={"gain_symbols": res.gain_symbols, "solution_kind": res.kind},
+                      branches=tuple(branches) if len(branches) > 1 else (),
+                      selected_branch=chosen)
 
 
 def _controllable_somewhere(A: sp.Matrix, b: sp.Matrix) -> bool:
@@ -253,7 +299,7 @@ def _design_by_direction(A, B, spec, target, *, part, symbol, states, inputs, av
     from dataclasses import replace
 
     m = B.cols
-    key = "output_direction" if word == "observable" else "input_direction"
+    key = _direction_key(word)
     label = "outputs" if word == "observable" else "inputs"
     raw = spec.values.get(key)
     if raw is not None:

@@ -64,6 +64,17 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
             for i in range(value.rows):
                 for j in range(value.cols):
                     lines.append(f"  {key}[{rl[i]}, {cl[j]}] = {sp.sstr(value[i, j])}")
+    for b in part.branches:
+        shown = " (shown above)" if b.index == (part.selected_branch or 1) else ""
+        real = ("real when " + "; ".join(sp.sstr(c) for c in b.real_when)) if b.real_when else "real wherever it holds"
+        lines.append(f"  branch {b.index}{shown}: {real}" + (f"; {b.note}" if b.note else ""))
+        rl, cl = gain_labels(design.model, part.part, b.gain.rows, b.gain.cols)
+        for i in range(b.gain.rows):
+            lines.append(f"    {part.symbol}[{rl[i]}, :] = [" + ", ".join(sp.sstr(e) for e in b.gain.row(i)) + "]")
+        for key, value in b.extra.items():
+            rl, cl = gain_labels(design.model, key, value.rows, value.cols)
+            for i in range(value.rows):
+                lines.append(f"    {key}[{rl[i]}, :] = [" + ", ".join(sp.sstr(e) for e in value.row(i)) + "]")
     if part.free_gains:
         lines.append("  free gains (not fixed by the target): " + ", ".join(map(str, part.free_gains)))
     if part.valid_when:

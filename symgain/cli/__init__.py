@@ -1,7 +1,8 @@
 """The command line: a thin shell that parses arguments, calls the library, prints, exits.
 
 Exit codes: 0 ok, 1 a check failed, 2 bad input (one line on stderr; the
-traceback only with --debug), 3 an internal error (a bug: please report it). Each command lives in its own module of this
+traceback only with --debug), 3 an internal error (a bug: please report it), 4 a
+well-posed design that cannot be solved in closed form (the reason on stderr). Each command lives in its own module of this
 package and registers itself through ``add_to(subparsers)``.
 """
 from __future__ import annotations
@@ -10,7 +11,7 @@ import argparse
 import importlib
 import sys
 
-from ..errors import SymgainError
+from ..errors import ClosedFormLimitation, SymgainError
 
 __all__ = ["main", "COMMAND_MODULES"]
 
@@ -51,6 +52,11 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     try:
         return int(args.run(args) or 0)
+    except ClosedFormLimitation as exc:
+        if args.debug:
+            raise
+        print(f"symgain: no closed form: {exc}", file=sys.stderr)
+        return 4
     except SymgainError as exc:
         if args.debug:
             raise

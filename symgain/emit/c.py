@@ -100,23 +100,28 @@ def _comment(fn: Function, names: dict[str, str]) -> list[str]:
     lines.append(" * returns 0 on success;")
     for k, cond in enumerate(fn.conditions, start=1):
         lines.append(f" * returns {k} when {sp.sstr(cond)} == 0 ({fn.label} is then left untouched);")
-    if not fn.conditions:
+    for k, cond in enumerate(fn.nonnegative, start=len(fn.conditions) + 1):
+        lines.append(f" * returns {k} when {sp.sstr(cond)} < 0 (this branch is not real there);")
+    if fn.branch is not None:
+        lines.append(f" * solution branch {fn.branch} of the design (several branches reach the target).")
+    if not fn.conditions and not fn.nonnegative:
         lines.append(" * valid for every parameter value allowed by the declared signs.")
     lines.append(" */")
     return [line.replace("*/", "* /") if i < len(lines) - 1 else line for i, line in enumerate(lines)]
 
 
 def _renamed(fn: Function, names):
-    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions])
+    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
-    return [e.xreplace(rename) for e in fn.matrix], [c.xreplace(rename) for c in fn.conditions]
+    return ([e.xreplace(rename) for e in fn.matrix], [c.xreplace(rename) for c in fn.conditions],
+            [c.xreplace(rename) for c in fn.nonnegative])
 
 
 def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: bool = True) -> list[str]:
-    entries, conditions = _renamed(fn, names)
+    entries, conditions, nonnegative = _renamed(fn, names)
     avoid = set(names.values()) | {fn.label}
     lines = []
-    used = {str(s) for e in [*entries, *conditions] for s in e.free_symbols}
+    used = {str(s) for e in [*entries, *conditions, *nonnegative] for s in e.free_symbols}
     for a in fn.arguments:
         if names[a] not in used:
             lines.append(f"    (void){names[a]};  /* not needed by these formulas */")
@@ -127,6 +132,13 @@ def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: b
         scale = " + ".join(f"{fabs}({printer.doprint(t)})" for t in terms)
         lit = f"{tol!r}f" if ctype == "float" else repr(tol)
         lines.append(f"    if ({fabs}({printer.doprint(value)}) <= {lit} * ({one} + {scale})) {{")
+        lines.append(f"        return {k};")
+        lines.append("    }")
+    for k, cond in enumerate(nonnegative, start=len(conditions) + 1):
+        (value,), terms = failure_rule(cond)
+        scale = " + ".join(f"{fabs}({printer.doprint(t)})" for t in terms)
+        lit = f"{tol!r}f" if ctype == "float" else repr(tol)
+        lines.append(f"    if ({printer.doprint(value)} < -{lit} * ({one} + {scale})) {{")
         lines.append(f"        return {k};")
         lines.append("    }")
     if cse:

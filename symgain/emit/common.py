@@ -53,6 +53,8 @@ class Function:
     arguments: tuple[str, ...]  # parameter names (declaration order), then free gains
     conditions: tuple[sp.Expr, ...]  # f of each Ne(f, 0), in the order of part.valid_when
     meanings: tuple[tuple[str, str, str, tuple | None], ...]  # (name, meaning, unit, range)
+    nonnegative: tuple[sp.Expr, ...] = ()  # f of each f >= 0 (a solution branch is real there)
+    branch: int | None = None  # the solution branch this function holds (several-input designs)
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -60,9 +62,19 @@ class Function:
 
 
 def _condition_expr(cond) -> sp.Expr:
-    if isinstance(cond, sp.Ne):
+    if isinstance(cond, (sp.Ne, sp.Ge)):
         return cond.lhs - cond.rhs if cond.rhs != 0 else cond.lhs
-    raise TypeError(f"only Ne(f, 0) conditions can be emitted, found {cond}")
+    raise TypeError(f"only Ne(f, 0) and f >= 0 conditions can be emitted, found {cond}")
+
+
+def _split_conditions(conds) -> tuple[tuple, tuple]:
+    """(f of each Ne(f, 0), f of each f >= 0)."""
+    ne = tuple(_condition_expr(c) for c in conds if isinstance(c, sp.Ne))
+    ge = tuple(_condition_expr(c) for c in conds if isinstance(c, sp.Ge))
+    ge += tuple(c.rhs - c.lhs for c in conds if isinstance(c, sp.Le))
+    if len(ne) + len(ge) != len(tuple(conds)):
+        raise TypeError(f"only Ne(f, 0) and f >= 0 conditions can be emitted, found {conds}")
+    return ne, ge
 
 
 def design_functions(design: Design) -> list[Function]:
@@ -80,15 +92,27 @@ def design_functions(design: Design) -> list[Function]:
                 continue
             name = key if key not in taken and key != f"{part.part}_gain" else f"{part.part}_{key}"
             matrices.append((key, name, key, value))
-        conditions = tuple(_condition_expr(c) for c in part.valid_when)
-        for key, name, label, matrix in matrices:
+        shown = part.selected_branch or (1 if part.branches else None)
+        entries = [(key, name, label, matrix, part.valid_when, shown) for key, name, label, matrix in matrices]
+        if part.branches and part.selected_branch is None:  # every other branch is emitted too
+            for b in part.branches:
+                if b.index == shown:
+                    continue
+                entries.append(("gain", f"{part.part}_gain_branch_{b.index}", part.symbol, b.gain,
+                                b.valid_when, b.index))
+                for key, value in b.extra.items():
+                    entries.append((key, f"{part.part}_{key}_branch_{b.index}", key, value, b.valid_when,
+                                    b.index))
+        for key, name, label, matrix, valid, branch in entries:
+            conditions, nonnegative = _split_conditions(valid)
             taken.add(name)
             matrix = sp.ImmutableMatrix(matrix)
-            free = sorted((s for s in matrix.free_symbols | {s for c in conditions for s in c.free_symbols}
+            free = sorted((s for s in matrix.free_symbols
+                           | {s for c in (*conditions, *nonnegative) for s in c.free_symbols}
                            if s not in declared), key=str)
             fm = tuple((str(s), "free gain left undetermined by the target", "", None) for s in free)
             out.append(Function(name, part.part, key, label, matrix, tuple(params) + tuple(map(str, free)),
-                                conditions, meanings + fm))
+                                conditions, meanings + fm, nonnegative, branch))
     return out
 
 

@@ -33,7 +33,12 @@ def _part(part: GainDesign, sensitivity: dict | None = None) -> dict:
     for key, value in part.extra.items():
         if key == "gain_symbols":
             continue
-        out[key] = _matrix(value) if isinstance(value, sp.MatrixBase) else sp.sstr(value)
+        if isinstance(value, sp.MatrixBase):
+            out[key] = _matrix(value)
+        elif isinstance(value, (tuple, list)):
+            out[key] = [sp.sstr(v) for v in value]
+        else:
+            out[key] = sp.sstr(value)
     if part.target is not None:
         out["target_polynomial"] = sp.sstr(part.target.polynomial)
         out["target"] = part.target.description
@@ -45,6 +50,13 @@ def _part(part: GainDesign, sensitivity: dict | None = None) -> dict:
         out["free_gains"] = [str(s) for s in part.free_gains]
     if part.notes:
         out["notes"] = list(part.notes)
+    if part.branches:  # every real solution branch, with the conditions for it to be real
+        out["selected_branch"] = part.selected_branch if part.selected_branch is not None else "all"
+        out["branches"] = [{"branch": b.index, "gain": _matrix(b.gain),
+                            **{key: _matrix(v) for key, v in b.extra.items()},
+                            "valid_when": [sp.sstr(c) for c in b.valid_when],
+                            "real_when": [sp.sstr(c) for c in b.real_when],
+                            **({"note": b.note} if b.note else {})} for b in part.branches]
     if sensitivity is not None:
         out["sensitivity"] = {name: _matrix(mat) for name, mat in sensitivity.items()}
     return out

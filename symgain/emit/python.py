@@ -62,10 +62,14 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
         shown = names[name] + (f" (model name {name})" if names[name] != name else "")
         unit_text = f" [{unit}]" if unit else ""
         lines.append(f"    {shown}{unit_text}: {meaning or 'no meaning given'}; range {_range_text(rng)}")
+    if fn.branch is not None:
+        lines += ["", f"Solution branch {fn.branch} of the design (several branches reach the target)."]
     lines += ["", "Valid when (otherwise ValueError):"]
-    if fn.conditions:
+    if fn.conditions or fn.nonnegative:
         lines += [f"    {sp.sstr(c)} != 0" for c in fn.conditions]
-        lines.append(f"    (fails where |f| <= {TOLERANCE['double']:g} * (1 + sum of |terms of f|))")
+        lines += [f"    {sp.sstr(c)} >= 0  (the branch is real)" for c in fn.nonnegative]
+        lines.append(f"    (fails where |f| <= {TOLERANCE['double']:g} * (1 + sum of |terms of f|), "
+                     "or f < -that for f >= 0)")
     else:
         lines.append("    always (the declared signs rule out every singular case)")
     lines.append('"""')
@@ -74,7 +78,7 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
 
 def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]:
     names = {a: mangle(a, PYTHON_RESERVED) for a in fn.arguments}
-    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions])
+    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
     body = [f"def {fn.name}(*, {args}):"]
@@ -91,6 +95,11 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
             body.append(f"    _fails(numpy.abs({printer.doprint(value)}) <= "
                         f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
                         f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
+    for cond in fn.nonnegative:
+        (value,), terms = failure_rule(cond.xreplace(rename))
+        scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
+        body.append(f"    _fails({printer.doprint(value)} < -{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
+                    f"{fn.name!r}, {sp.sstr(cond) + ' >= 0'!r})")
     entries = [e.xreplace(rename) for e in fn.matrix]
     replacements, reduced = shared_subexpressions(entries, avoid)
     rows, cols = fn.shape
