@@ -206,6 +206,24 @@ def _extras(part: GainDesign) -> list[str]:
     return out
 
 
+def _branches(part: GainDesign) -> list[str]:
+    """Every real solution branch with the conditions for it to be real (several-input designs)."""
+    if not part.branches:
+        return []
+    shown = part.selected_branch or 1
+    which = (f"The model selects branch {shown}; only it is emitted as code." if part.selected_branch
+             else f"Branch {shown} is the gain shown above; every branch is emitted as code.")
+    out = [r"\subsection{Solution branches}",
+           f"The coefficient equations have {len(part.branches)} real solution branches. {which}"]
+    for b in part.branches:
+        real = ("It is real when " + ", ".join(f"${tex(c)}$" for c in b.real_when) + "."
+                if b.real_when else "It is real wherever the formulas hold.")
+        out.append(f"Branch {b.index}. {real}" + (f" {text(b.note)}." if b.note else ""))
+        name = f"{part.symbol}^{{({b.index})}}"
+        out += _matrix_block(name, b.gain, f"{part.part}.branch[{b.index}]")
+    return out
+
+
 def _sensitivity(design: Design, part: GainDesign, table) -> list[str]:
     """Partial derivatives of each gain entry with respect to each parameter (closed form)."""
     rows, omitted = [], 0
@@ -236,6 +254,7 @@ def _part(design: Design, part: GainDesign, sensitivity=None) -> list[str]:
     for step in part.steps:
         out += _step(part, step)
     out += _extras(part)
+    out += _branches(part)
     if sensitivity is not None:
         out += _sensitivity(design, part, sensitivity[part.part])
     if part.free_gains:
