@@ -197,7 +197,9 @@ def design_canonical(A, B, spec: TargetSpec, target, *, part, symbol, states, av
     label = "input" if word == "controllable" else "output"
     chains = ", ".join(f"mu_{i + 1} = {k}" for i, k in enumerate(mu))
     notes = (f"canonical design for several {label}s: controllability indices {chains}; one polynomial per "
-             f"chain; unique for this split; {rule}", SOURCE, *target.notes)
+             f"chain; unique for this split; {rule}: "
+             + "; ".join(f"chain {k} gets {sp.sstr(sp.factor(p))}" for k, p in enumerate(polys, start=1)),
+             SOURCE, *target.notes)
     steps = (
         Step("controllability_indices", "controllability indices (crate-order scan of b_i, A b_i, ...)",
              chains),
