@@ -88,7 +88,9 @@ def design_estimator(model: Model, avoid: set[str], feedback=None):
     extra["gain_symbols"] = Lsym
     if "direction" in dual.extra:
         extra["output_direction"] = sp.ImmutableMatrix(dual.extra["direction"]).T
-    part = replace(dual, gain=sp.ImmutableMatrix(L), steps=tuple(steps), notes=notes, extra=extra)
+    branches = tuple(replace(b, gain=sp.ImmutableMatrix(sp.Matrix(b.gain).T)) for b in dual.branches)
+    part = replace(dual, gain=sp.ImmutableMatrix(L), steps=tuple(steps), notes=notes, extra=extra,
+                   branches=branches)
     return _index_by_state(part, p) if p > 1 else part
 
 
@@ -114,7 +116,9 @@ def _index_by_state(part, p: int):
                    closed_loop_polynomial=_swap(part.closed_loop_polynomial, mapping),
                    steps=tuple(Step(st.name, st.title, _swap(st.value, mapping)) for st in part.steps),
                    free_gains=_swap(part.free_gains, mapping),
-                   extra={k: _swap(v, mapping) for k, v in part.extra.items()})
+                   extra={k: _swap(v, mapping) for k, v in part.extra.items()},
+                   branches=tuple(replace(b, gain=_swap(b.gain, mapping), valid_when=_swap(b.valid_when, mapping))
+                                  for b in part.branches))
 
 
 def separation_polynomial(A, B, C, K, L) -> sp.Expr:

@@ -122,6 +122,10 @@ def design_integral(model: Model, avoid: set[str]):
         else:
             steps.append(st)
     note = "control law u = -K x - Ki q with q' = y - r (one integrator per output)"
+    branches = tuple(replace(b, gain=sp.ImmutableMatrix(sp.Matrix(b.gain)[:, :n]),
+                             valid_when=tuple(dict.fromkeys((*b.valid_when, *zconds))),
+                             extra={"integral_gain": sp.ImmutableMatrix(sp.Matrix(b.gain)[:, n:])})
+                     for b in full.branches)
     return replace(full, gain=sp.ImmutableMatrix(K), valid_when=valid, steps=tuple(steps),
-                   notes=(note, *full.notes),
+                   notes=(note, *full.notes), branches=branches,
                    extra={**full.extra, "integral_gain": sp.ImmutableMatrix(Ki)})

@@ -129,14 +129,16 @@ def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: b
     one = "1.0f" if ctype == "float" else "1.0"
     for k, cond in enumerate(conditions, start=1):
         (value,), terms = failure_rule(cond)
-        scale = " + ".join(f"{fabs}({printer.doprint(t)})" for t in terms)
+        scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"{fabs}({printer.doprint(t)})"
+                           for t in terms)
         lit = f"{tol!r}f" if ctype == "float" else repr(tol)
         lines.append(f"    if ({fabs}({printer.doprint(value)}) <= {lit} * ({one} + {scale})) {{")
         lines.append(f"        return {k};")
         lines.append("    }")
     for k, cond in enumerate(nonnegative, start=len(conditions) + 1):
         (value,), terms = failure_rule(cond)
-        scale = " + ".join(f"{fabs}({printer.doprint(t)})" for t in terms)
+        scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"{fabs}({printer.doprint(t)})"
+                           for t in terms)
         lit = f"{tol!r}f" if ctype == "float" else repr(tol)
         lines.append(f"    if ({printer.doprint(value)} < -{lit} * ({one} + {scale})) {{")
         lines.append(f"        return {k};")

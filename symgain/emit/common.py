@@ -101,8 +101,9 @@ def design_functions(design: Design) -> list[Function]:
                 entries.append(("gain", f"{part.part}_gain_branch_{b.index}", part.symbol, b.gain,
                                 b.valid_when, b.index))
                 for key, value in b.extra.items():
-                    entries.append((key, f"{part.part}_{key}_branch_{b.index}", key, value, b.valid_when,
-                                    b.index))
+                    name = f"{key}_branch_{b.index}"
+                    entries.append((key, name if name not in taken else f"{part.part}_{name}", key, value,
+                                    b.valid_when, b.index))
         for key, name, label, matrix, valid, branch in entries:
             conditions, nonnegative = _split_conditions(valid)
             taken.add(name)

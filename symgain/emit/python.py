@@ -91,13 +91,15 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         conds = [c.xreplace(rename) for c in fn.conditions]
         for cond, orig in zip(conds, fn.conditions):
             (value,), terms = failure_rule(cond)
-            scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
+            scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"numpy.abs({printer.doprint(t)})"
+                          for t in terms)
             body.append(f"    _fails(numpy.abs({printer.doprint(value)}) <= "
                         f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
                         f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
     for cond in fn.nonnegative:
         (value,), terms = failure_rule(cond.xreplace(rename))
-        scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
+        scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"numpy.abs({printer.doprint(t)})"
+                          for t in terms)
         body.append(f"    _fails({printer.doprint(value)} < -{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
                     f"{fn.name!r}, {sp.sstr(cond) + ' >= 0'!r})")
     entries = [e.xreplace(rename) for e in fn.matrix]
