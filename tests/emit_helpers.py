@@ -54,6 +54,14 @@ def random_points(design, n: int, seed: int = 1) -> dict[str, np.ndarray]:
 def all_values(design, fn, n: int, seed: int = 1) -> dict[str, np.ndarray]:
     """Random parameter points, plus values in [0.5, 2] for free gains (non-parameter arguments)."""
     values = random_points(design, n, seed)
+    if fn.nonnegative:  # a solution branch: keep points where it is real (f >= 0), drawn from a larger sample
+        wide = random_points(design, 20 * n, seed)
+        keep = np.ones(20 * n, dtype=bool)
+        for cond in fn.nonnegative:
+            names = sorted(map(str, cond.free_symbols))
+            keep &= np.asarray(sp.lambdify(names, cond, "numpy")(*[wide[k] for k in names])) >= 0
+        assert keep.sum() >= n, f"{fn.name}: fewer than {n} sampled points where the branch is real"
+        values = {k: v[keep][:n] for k, v in wide.items()}
     rng = np.random.default_rng(seed + 100)
     for a in fn.arguments:
         if a not in values:

@@ -148,7 +148,7 @@ def test_several_branches_are_reported_through_derive():
     assert part.extra["solution_kind"] == "branches"
     branches = part.step("branches").value
     assert {(b[0, 0], b[1, 1]) for b in branches} == {(w.symbol, 3 * w.symbol), (3 * w.symbol, w.symbol)}
-    assert any("2 branches" in n for n in part.notes)
+    assert any("2 real branches" in n for n in part.notes)
     closed_loop_matches(model, part)
 
 

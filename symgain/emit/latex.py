@@ -213,14 +213,13 @@ def _branches(part: GainDesign) -> list[str]:
     shown = part.selected_branch or 1
     which = (f"The model selects branch {shown}; only it is emitted as code." if part.selected_branch
              else f"Branch {shown} is the gain shown above; every branch is emitted as code.")
-    out = [r"\subsection{Solution branches}",
-           f"The coefficient equations have {len(part.branches)} real solution branches. {which}"]
+    out = [r"\subsection{Where each branch is real}",
+           f"The coefficient equations have {len(part.branches)} real solution branches "
+           f"${part.symbol}^{{(1)}}, \\ldots, {part.symbol}^{{({len(part.branches)})}}$ (listed above). {which}"]
     for b in part.branches:
-        real = ("It is real when " + ", ".join(f"${tex(c)}$" for c in b.real_when) + "."
-                if b.real_when else "It is real wherever the formulas hold.")
-        out.append(f"Branch {b.index}. {real}" + (f" {text(b.note)}." if b.note else ""))
-        name = f"{part.symbol}^{{({b.index})}}"
-        out += _matrix_block(name, b.gain, f"{part.part}.branch[{b.index}]")
+        real = ("real when " + ", ".join(f"${tex(c)}$" for c in b.real_when) + "."
+                if b.real_when else "real wherever the formulas hold.")
+        out.append(f"Branch {b.index}: {real}" + (f" {text(b.note)}." if b.note else ""))
     return out
 
 

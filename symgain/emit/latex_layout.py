@@ -156,8 +156,10 @@ def equation_lines(lhs, rhs, label: str = "", width: int = WIDTH) -> list[str]:
 
 def matrix_tex(mat) -> str | None:
     """A ``bmatrix`` when it fits on a line, otherwise ``None`` (show the entries one by one)."""
-    rows = [" & ".join(tex(e) for e in mat.row(i)) for i in range(mat.rows)]
-    if max(visible_width(r) for r in rows) + 2 * mat.cols > WIDTH - 12:
+    cells = [[tex(e) for e in mat.row(i)] for i in range(mat.rows)]
+    rows = [" & ".join(r) for r in cells]
+    widths = [max(visible_width(cells[i][j]) for i in range(mat.rows)) for j in range(mat.cols)]
+    if sum(widths) + 3 * mat.cols > WIDTH - 12:  # columns align: the widest entry of each column counts
         return None
     return r"\begin{bmatrix} " + r" \\ ".join(rows) + r" \end{bmatrix}"
 
