@@ -33,7 +33,7 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from .errors import DesignError, ModelError, Where
+from .errors import ClosedFormLimitation, DesignError, ModelError, Where
 from .expressions import parse_expression
 from .model import S, TargetSpec
 from .placement import gain_symbols
@@ -203,6 +203,8 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
             res = place_structured(A, B, pattern, target.polynomial, letter=symbol.lower(), avoid=avoid)
         except DesignError as exc:
             raise DesignError(exc.what if spec.where.key else f"{part}: {exc.what}", where=pw) from None
+        except ClosedFormLimitation as exc:
+            raise ClosedFormLimitation(exc.what if spec.where.key else f"{part}: {exc.what}", where=pw) from None
         return _structured_design(A, B, spec, target, res, part=part, symbol=symbol, GainDesign=GainDesign,
                                   Step=Step)
     method = spec.values.get("method")

@@ -193,9 +193,13 @@ def _solve(polys, unknowns, factors_seen) -> tuple[list[BranchSolution], int]:
             continue
         roots = _roots(f, x)
         if roots is None:
+            whole = sp.expand(f_expr - g) == 0 or sp.expand(f_expr + g) == 0 or len(facs) == 1
+            where_from = ("the eliminating polynomial, irreducible over the parameters' field" if whole
+                          else f"the irreducible factor {sp.sstr(f_expr)} of the eliminating polynomial "
+                          f"{sp.sstr(sp.factor(g))}")
             raise ClosedFormLimitation(
-                f"the gain {x} is a root of the irreducible factor {sp.sstr(f_expr)} (degree {f.degree()}) "
-                f"of the eliminating polynomial {sp.sstr(sp.factor(g))}: no readable closed form; "
+                f"the gain {x} is a root of {where_from}, of degree {f.degree()}"
+                + (f": {sp.sstr(f_expr)}" if whole else "") + "; no readable closed form; "
                 "change the pattern, use method = \"canonical\", or give an input_direction")
         if not roots:
             dropped += f.degree()

@@ -224,3 +224,18 @@ def test_no_closed_form_exits_4_with_the_reason(tmp_path, capsys):
     assert main(["derive", str(path)]) == 4
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "degree 5" in err and "no closed form" in err
+
+
+def test_check_without_closed_form_runs_numerically_and_can_fail(tmp_path, capsys):
+    path = tmp_path / "q.toml"
+    path.write_text(QUINTIC)
+    assert main(["check", str(path), "--points", "3"]) == 4  # numeric check passed, still no closed form
+    out = capsys.readouterr().out
+    # 5 distinct real roots shared among 5 diagonal gains: 5! = 120 real gains at each point
+    assert out.count("120 real gains") == 3 and "numeric check passed" in out
+    # (s + 1)^5 + 2 is irreducible with four complex roots: no real diagonal gain reaches it
+    path.write_text(QUINTIC.replace("s^5 + 15*s^4 + 85*s^3 + 225*s^2 + 275*s + 245/2",
+                                    "s^5 + 5*s^4 + 10*s^3 + 10*s^2 + 5*s + 3"))
+    assert main(["derive", str(path)]) == 4
+    assert main(["check", str(path), "--points", "2"]) == 1
+    assert "0 real gains" in capsys.readouterr().out

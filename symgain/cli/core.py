@@ -2,11 +2,13 @@
 from __future__ import annotations
 
 import argparse
+import sys
 import time
 from importlib import resources
 
 from ..check import DEFAULT_TOLERANCE, check_design
 from ..design import derive
+from ..errors import ClosedFormLimitation
 from ..emit.json import design_to_json
 from ..model_file import load_model, model_from_text
 from ..terminal import format_check, format_design
@@ -60,7 +62,40 @@ def _print_check(design, args) -> int:
 
 
 def run_check(args) -> int:
-    return _print_check(derive(load_model(args.model)), args)
+    model = load_model(args.model)
+    try:
+        design = derive(model)
+    except ClosedFormLimitation as exc:  # no closed form: check numerically where a pattern allows it
+        return _check_numerically(model, exc, args)
+    return _print_check(design, args)
+
+
+def _check_numerically(model, exc: ClosedFormLimitation, args) -> int:
+    """Exit 4 (no closed form) after a numeric check at the sampled points; 1 if that check fails."""
+    from ..numeric_branches import check_without_closed_form
+
+    key = exc.where.key or ""
+    part = key.split(".")[0]
+    if not key.endswith(".pattern") or getattr(model, part, None) is None:
+        print(f"symgain: no closed form: {exc}", file=sys.stderr)
+        return 4
+    points = check_without_closed_form(model, part, args.points, args.seed, args.tolerance)
+    names = [p.name for p in model.parameters]
+    print(f"{part}: no closed form ({exc.what})")
+    print(f"numeric check of the pattern at {len(points)} points (seed {args.seed}): real gains found by "
+          "solving the coefficient equations numerically, each closed loop compared with the target")
+    failed = 0
+    for p in points:
+        label = "nominal" if p.index == 0 else str(p.index)
+        values = ", ".join(f"{n} = {p.values[n]:.4g}" for n in names)
+        bad = p.gains == 0 or p.worst_error is None or p.worst_error > args.tolerance
+        failed += bad
+        err = "-" if p.worst_error is None else f"{p.worst_error:.1e}"
+        print(f"  {label}: {values}: {p.gains} real gain{'s' if p.gains != 1 else ''}, worst closed-loop "
+              f"err {err}  {'FAILED' if bad else 'ok'}")
+    print("numeric check " + ("FAILED" if failed else "passed") + "; the design has no closed form (exit code 4)")
+    print(f"symgain: no closed form: {exc}", file=sys.stderr)
+    return 1 if failed else 4
 
 
 DEMO_FILE = "demo_conveyor.toml"
