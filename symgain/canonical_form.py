@@ -174,7 +174,8 @@ def canonical_gain(A: sp.Matrix, B: sp.Matrix, chain_polys: list[sp.Expr]) -> Ca
                          (*dens, num))
 
 
-def design_canonical(A, B, spec: TargetSpec, target, *, part, symbol, states, avoid, word="controllable"):
+def design_canonical(A, B, spec: TargetSpec, target, *, part, symbol, states, avoid, word="controllable",
+                     symbols=None):
     """GainDesign by the canonical form (key ``method = "canonical"``)."""
     from .design import GainDesign, Step
 
@@ -189,7 +190,7 @@ def design_canonical(A, B, spec: TargetSpec, target, *, part, symbol, states, av
                                    where=spec.where)
     sizes = [k for k in mu if k > 0]
     where = spec.where.child("target_split") if spec.where.key else spec.where
-    polys, rule = split_target(target, spec.values.get("target_split"), sizes, "chain", where)
+    polys, rule = split_target(target, spec.values.get("target_split"), sizes, "chain", where, symbols or {})
     res = canonical_gain(A, B, polys)
     valid = nonzero_conditions(res.denominators)
     Ksym = gain_symbols(symbol.lower(), (m, n), avoid)

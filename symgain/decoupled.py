@@ -76,15 +76,18 @@ def _names(indices, names) -> str:
 
 
 def design_blocks(A, B, spec: TargetSpec, target, blocks, *, part, symbol, states, inputs, avoid, symbols,
-                  word):
-    """One GainDesign whose gain is assembled from a design per block."""
+                  word, design_several_inputs):
+    """One GainDesign whose gain is assembled from a design per block.
+
+    ``design_several_inputs`` designs a block with several inputs (passed in by the caller, the route
+    for several inputs, so that the two modules do not import each other).
+    """
     from .design import GainDesign, Step, design_gain
-    from .multi_input import design_several_inputs
 
     n, m = A.rows, B.cols
     where = spec.where.child("target_split") if spec.where.key else spec.where
     shares, rule = split_target(target, spec.values.get("target_split"), [len(s) for s, _ in blocks],
-                                "block", where)
+                                "block", where, symbols)
     Ksym = gain_symbols(symbol.lower(), (m, n), avoid)
     K, closed, valid, steps, notes = sp.zeros(m, n), sp.Integer(1), [], [], []
     free: list = []

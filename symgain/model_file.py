@@ -156,10 +156,8 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
             raise ModelError(f"unknown method {table['method']!r}; choose one of {', '.join(METHODS)}",
                              where=where.child("method"))
         values["method"] = table["method"]
-    if "target_split" in table:
-        from .target_split import parse_target_split
-
-        values["target_split"] = parse_target_split(table["target_split"], symbols, where.child("target_split"))
+    if "target_split" in table:  # parsed by the design stage (symgain.target_split), like pattern
+        values["target_split"] = table["target_split"]
     if kind == "prototype":
         from .prototypes import PROTOTYPES
 

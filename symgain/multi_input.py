@@ -212,14 +212,15 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
         from .canonical_form import design_canonical
 
         return design_canonical(A, B, spec, target, part=part, symbol=symbol, states=states, avoid=avoid,
-                                word=word)
+                                word=word, symbols=symbols)
     if spec.values.get(_direction_key(word)) is None and method != "direction":
         from .decoupled import design_blocks, plant_blocks
 
         blocks = plant_blocks(A, B)
         if len(blocks) > 1:
             return design_blocks(A, B, spec, target, blocks, part=part, symbol=symbol, states=states,
-                                 inputs=inputs, avoid=avoid, symbols=symbols, word=word)
+                                 inputs=inputs, avoid=avoid, symbols=symbols, word=word,
+                                 design_several_inputs=design_several_inputs)
     return _design_by_direction(A, B, spec, target, part=part, symbol=symbol, states=states, inputs=inputs,
                                 avoid=avoid, symbols=symbols, word=word, design_gain=design_gain, Step=Step)
 

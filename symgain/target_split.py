@@ -90,11 +90,11 @@ def _factors(target) -> list[sp.Expr]:
 
 
 def split_target(target, given, sizes: list[int], what: str = "block",
-                 where: Where | None = None) -> tuple[list[sp.Expr], str]:
+                 where: Where | None = None, symbols: dict | None = None) -> tuple[list[sp.Expr], str]:
     """(one monic polynomial per block/chain, the rule used as text).
 
-    ``target`` is a :class:`~symgain.targets.Target` or a polynomial in s; ``given`` the parsed
-    ``target_split`` (or None).
+    ``target`` is a :class:`~symgain.targets.Target` or a polynomial in s; ``given`` the model's
+    ``target_split`` as written (parsed here with the declared ``symbols``), or None.
     """
     from .targets import Target
 
@@ -102,6 +102,7 @@ def split_target(target, given, sizes: list[int], what: str = "block",
         target = Target(sp.expand(target), None, "")
     where = where or Where()
     if given is not None:
+        given = parse_target_split(given, symbols or {}, where)
         if len(given) != len(sizes):
             raise ModelError(f"target_split has {len(given)} entries but the design has {len(sizes)} {what}s "
                              f"(of {', '.join(map(str, sizes))} states)", where=where)
