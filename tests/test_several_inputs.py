@@ -20,16 +20,16 @@ import pytest
 import sympy as sp
 from scipy import signal
 
-from symgain.canonical_form import canonical_gain, controllability_indices
-from symgain.check import check_design
+from symgain.design.canonical_form import canonical_gain, controllability_indices
+from symgain.analysis.check import check_design
 from symgain.cli import main
-from symgain.decoupled import plant_blocks
+from symgain.design.decoupled import plant_blocks
 from symgain.design import derive
 from symgain.emit.common import design_functions
 from symgain.emit.json import design_to_dict
 from symgain.errors import ClosedFormLimitation, DesignError, ModelError
 from symgain.model import Model, Parameter, S, TargetSpec
-from symgain.model_file import load_model
+from symgain.model.toml_file import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 GANTRY = ROOT / "examples" / "two_axis_gantry.toml"

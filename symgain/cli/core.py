@@ -6,12 +6,12 @@ import sys
 import time
 from importlib import resources
 
-from ..check import DEFAULT_TOLERANCE, check_design
+from ..analysis.check import DEFAULT_TOLERANCE, check_design
 from ..design import derive
 from ..errors import ClosedFormLimitation
 from ..emit.json import design_to_json
-from ..model_file import load_model, model_from_text
-from ..terminal import format_check, format_design
+from ..model.toml_file import load_model, model_from_text
+from ..emit.terminal import format_check, format_design
 
 _FMT = argparse.RawDescriptionHelpFormatter
 
@@ -72,7 +72,7 @@ def run_check(args) -> int:
 
 def _check_numerically(model, exc: ClosedFormLimitation, args) -> int:
     """Exit 4 (no closed form) after a numeric check at the sampled points; 1 if that check fails."""
-    from ..numeric_branches import check_without_closed_form
+    from ..analysis.numeric_branches import check_without_closed_form
 
     key = exc.where.key or ""
     part = key.split(".")[0]

@@ -37,7 +37,7 @@ from dataclasses import dataclass, field
 
 import sympy as sp
 
-from .errors import ClosedFormLimitation, DesignError
+from ..errors import ClosedFormLimitation, DesignError
 
 __all__ = ["BranchSolution", "SolvedSystem", "solve_branches", "real_conditions"]
 

@@ -5,7 +5,7 @@ is not identically zero), and an input joins the block of every state it
 drives (B[i, u] not zero). The connected components of that graph, ordered
 by their first state, are the blocks: after permuting states and inputs, A
 and B are block diagonal. Each block is a plant of its own; its target is a
-share of the whole target (:mod:`symgain.target_split`), and its gain fills
+share of the whole target (:mod:`symgain.design.target_split`), and its gain fills
 the block's rows and columns of K, the rest of K being zero. A block with
 one input gets the single-input formula (unique); a block with several
 inputs is designed by the route for several inputs again.
@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import sympy as sp
 
-from .model import TargetSpec
+from ..model import TargetSpec
 from .placement import gain_symbols
 from .target_split import split_target
 
@@ -82,7 +82,8 @@ def design_blocks(A, B, spec: TargetSpec, target, blocks, *, part, symbol, state
     ``design_several_inputs`` designs a block with several inputs (passed in by the caller, the route
     for several inputs, so that the two modules do not import each other).
     """
-    from .design import GainDesign, Step, design_gain
+    from .result import GainDesign, Step
+    from .single_input import design_gain
 
     n, m = A.rows, B.cols
     where = spec.where.child("target_split") if spec.where.key else spec.where

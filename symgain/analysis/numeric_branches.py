@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 import sympy as sp
 
-from .model import S, Model
+from ..model import S, Model
 
 __all__ = ["numeric_structured_gains", "NumericPoint", "check_without_closed_form"]
 
@@ -103,8 +103,8 @@ class NumericPoint:
 
 def _plant_for(model: Model, part: str):
     """(A, B, pattern rows x cols as the gain K of A - B K, target spec) of a part, on its dual if needed."""
-    from .integral_action import augmented_plant
-    from .multi_input import parse_pattern
+    from ..design.integral_action import augmented_plant
+    from ..design.several_inputs import parse_pattern
 
     spec = getattr(model, part)
     A, B = sp.Matrix(model.A), sp.Matrix(model.B)
@@ -125,7 +125,7 @@ def check_without_closed_form(model: Model, part: str, n_points: int = 20, seed:
                               tolerance: float = 1e-6) -> list[NumericPoint]:
     """At sampled points: the real gains of the part's pattern, found numerically, and their error."""
     from .check import sample_points
-    from .targets import resolve_target
+    from ..design.targets import resolve_target
 
     A, B, pattern, spec = _plant_for(model, part)
     target = resolve_target(spec, A.rows).polynomial

@@ -22,7 +22,7 @@ from typing import Any, Mapping
 
 import sympy as sp
 
-from .errors import ModelError, Where
+from ..errors import ModelError, Where
 
 __all__ = ["Parameter", "TargetSpec", "Model", "SIGNS", "ROLES", "TARGET_KINDS"]
 
@@ -41,6 +41,10 @@ def _assumptions(sign: str) -> dict[str, bool]:
         "nonzero": {"nonzero": True, "real": True},
         "real": {"real": True},
     }[sign]
+
+
+# The standard normalized pole patterns a target may name (tables in symgain.design.prototypes).
+PROTOTYPE_NAMES: tuple[str, ...] = ("binomial", "butterworth", "bessel", "itae")
 
 
 @dataclass(frozen=True)
@@ -207,7 +211,7 @@ class Model:
         return {p.name: p.nominal for p in self.parameters if p.nominal is not None}
 
     def _repr_markdown_(self) -> str:
-        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.display`)."""
-        from .display import model_markdown
+        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.notebook`)."""
+        from ..notebook import model_markdown
 
         return model_markdown(self)

@@ -30,9 +30,9 @@ from __future__ import annotations
 
 import sympy as sp
 
-from .errors import ClosedFormLimitation, ModelError, Where
-from .expressions import parse_expression
-from .model import S
+from ..errors import ClosedFormLimitation, ModelError, Where
+from ..model.expressions import parse_expression
+from ..model import S
 
 __all__ = ["parse_target_split", "split_target", "RULE"]
 
@@ -93,7 +93,7 @@ def split_target(target, given, sizes: list[int], what: str = "block",
                  where: Where | None = None, symbols: dict | None = None) -> tuple[list[sp.Expr], str]:
     """(one monic polynomial per block/chain, the rule used as text).
 
-    ``target`` is a :class:`~symgain.targets.Target` or a polynomial in s; ``given`` the model's
+    ``target`` is a :class:`~symgain.design.targets.Target` or a polynomial in s; ``given`` the model's
     ``target_split`` as written (parsed here with the declared ``symbols``), or None.
     """
     from .targets import Target

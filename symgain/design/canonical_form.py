@@ -20,7 +20,7 @@ numbers from memory).
    q_i A^mu_i x + q_i A^(mu_i - 1) B u. The rows q_i A^(mu_i - 1) B form
    B_m, unit upper triangular.
 3. **Design.** Give chain i the monic polynomial p_i of degree mu_i (the
-   target split into one polynomial per chain, :mod:`symgain.target_split`).
+   target split into one polynomial per chain, :mod:`symgain.design.target_split`).
    Asking the last row of every chain to be the companion row of p_i gives
    the one gain
 
@@ -48,8 +48,8 @@ from dataclasses import dataclass
 import sympy as sp
 
 from .algebra import Field, Fraction, SparseLU, matvec
-from .errors import DesignError, NotControllableError
-from .model import S, TargetSpec
+from ..errors import DesignError, NotControllableError
+from ..model import S, TargetSpec
 from .placement import gain_symbols
 from .target_split import split_target
 from .validity import nonzero_conditions
@@ -177,13 +177,13 @@ def canonical_gain(A: sp.Matrix, B: sp.Matrix, chain_polys: list[sp.Expr]) -> Ca
 def design_canonical(A, B, spec: TargetSpec, target, *, part, symbol, states, avoid, word="controllable",
                      symbols=None):
     """GainDesign by the canonical form (key ``method = "canonical"``)."""
-    from .design import GainDesign, Step
+    from .result import GainDesign, Step
 
     n, m = A.rows, B.cols
     field = Field.for_exprs([*A, *B])
     mu, rank = _indices(field.matrix(A), field.matrix(B), field)
     if rank < n:
-        from .design import _unreachable_directions
+        from .single_input import _unreachable_directions
 
         raise NotControllableError(f"the plant is not {word} for any parameter values (controllability indices "
                                    f"{mu} add up to {rank} < {n})" + _unreachable_directions(A, B, states),

@@ -27,10 +27,10 @@ import numpy as np
 import scipy.signal
 import sympy as sp
 
-from .design import Design, GainDesign
-from .errors import ModelError, Where
-from .model import S, Model
-from .validity import holds_at
+from ..design import Design, GainDesign
+from ..errors import ModelError, Where
+from ..model import S, Model
+from ..design.validity import holds_at
 
 __all__ = ["PointResult", "CheckReport", "sample_points", "check_design", "DEFAULT_TOLERANCE",
            "closed_loop_matrix", "augmented_matrices", "steady_state_error"]

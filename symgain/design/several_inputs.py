@@ -33,13 +33,15 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from .errors import ClosedFormLimitation, DesignError, ModelError, Where
-from .expressions import parse_expression
-from .model import S, TargetSpec
+from ..errors import ClosedFormLimitation, DesignError, ModelError, Where
+from ..model.expressions import parse_expression
+from ..model import S, TargetSpec
 from .placement import gain_symbols
 from .polynomial_systems import BranchSolution, SolvedSystem, solve_branches
 from .targets import resolve_target
 from .validity import nonzero_conditions
+from .result import GainDesign, Step
+from .single_input import design_gain
 
 __all__ = ["parse_pattern", "parse_direction", "StructuredPlacement", "place_structured",
            "design_several_inputs"]
@@ -187,8 +189,6 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
                           word: str = "controllable", pattern_shape=None,
                           transpose_pattern: bool = False):
     """A GainDesign for A - B K with several inputs (pattern or input direction)."""
-    from .design import GainDesign, Step, design_gain  # the single-input route lives there
-
     symbols = symbols or {}
     n, m = A.rows, B.cols
     target = resolve_target(spec, n)
@@ -245,7 +245,7 @@ def selected_branch(spec: TargetSpec, count: int) -> int | None:
 
 
 def _structured_design(A, B, spec, target, res, *, part, symbol, GainDesign, Step):
-    from .design import Branch
+    from .result import Branch
 
     branches = []
     for k, (gain, real) in enumerate(zip(res.branches, res.real_when or ((),) * len(res.branches)), start=1):
