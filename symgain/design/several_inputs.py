@@ -108,6 +108,7 @@ class StructuredPlacement:
     real_when: tuple[tuple, ...] = ()  # per branch: conditions for it to be real
     branch_notes: tuple[str, ...] = ()
     complex_only: int = 0  # branches left out: complex for every parameter value
+    eliminating: sp.Expr | None = None  # the factored eliminating polynomial (nonlinear equations only)
 
 
 def _linear_in(eqs, xs) -> bool:
@@ -145,9 +146,8 @@ def _solve(eqs, unknowns, nfree):
                 continue
             solved = solve_branches(list(sub.exprs), rest)
             kind = "branches" if len(solved.branches) > 1 else ("family" if free else "unique")
-            method = ("lexicographic Groebner basis; eliminating polynomial"
-                      + "".join(f" {sp.sstr(g)} in {x}" for x, g in solved.factors[:1])
-                      + " factored over the parameters' field, each factor solved, then back substitution")
+            method = ("lexicographic Groebner basis; the eliminating polynomial (a step of the derivation) "
+                      "factored over the parameters' field, each factor solved, then back substitution")
             return kind, solved, tuple(free), method
     raise DesignError("could not separate the coefficient equations into free and determined gains")
 
@@ -181,7 +181,8 @@ def place_structured(A: sp.Matrix, B: sp.Matrix, pattern: list[list], target: sp
                      for b in solved.branches)
     return StructuredPlacement(K, unknowns, closed, equations, kind, branches, free, method,
                                tuple(b.real_when for b in solved.branches),
-                               tuple(b.note for b in solved.branches), solved.complex_only)
+                               tuple(b.note for b in solved.branches), solved.complex_only,
+                               solved.factors[0][1] if solved.factors else None)
 
 
 def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symbol: str,
@@ -272,6 +273,8 @@ def _structured_design(A, B, spec, target, res, *, part, symbol, GainDesign, Ste
              res.equations),
         Step("solution", f"gain {symbol}" + (f" (branch {shown.index})" if len(branches) > 1 else ""),
              sp.Matrix(shown.gain)),
+        *([Step("eliminating_polynomial", "eliminating polynomial (lexicographic Groebner basis), factored "
+                "over the parameters' field", res.eliminating)] if res.eliminating is not None else []),
         *([Step("branches", "every real solution branch", res.branches)] if len(branches) > 1 else []),
         Step("valid_when", "conditions for the formulas to hold", shown.valid_when),
     )
