@@ -298,3 +298,14 @@ def test_random_two_input_plants_default_route(plant):
     K = np.array(part.gain, dtype=float)
     got = np.poly(np.array(A, dtype=float) - np.array(B, dtype=float) @ K)
     assert np.allclose(got, np.poly(poles), rtol=1e-8, atol=1e-8 * np.max(np.abs(np.poly(poles))))
+
+
+def test_irreducible_cubic_under_a_symmetric_pattern_is_a_stated_limitation():
+    # diagonal gains on three integrators: (s + k1)(s + k2)(s + k3) = s^3 + 6 s^2 + 11 s + 7, which is
+    # irreducible over the rationals; once k3 is one Cardano root the other two are the roots of a
+    # quadratic with that root in its coefficients (nested radicals): refused, with the reason
+    from symgain.design.several_inputs import place_structured
+
+    with pytest.raises(ClosedFormLimitation, match="nested radicals"):
+        place_structured(sp.zeros(3, 3), sp.eye(3), [[None, 0, 0], [0, None, 0], [0, 0, None]],
+                         S**3 + 6 * S**2 + 11 * S + 7)
