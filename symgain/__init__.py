@@ -28,7 +28,8 @@ from .model.builders import model_from_equations, model_from_matrices
 from .analysis.check import CheckReport, check_design
 from .design import Design, GainDesign, derive
 from .emit.json import design_to_dict, design_to_json
-from .errors import DesignError, ExpressionError, ModelError, NotControllableError, SymgainError
+from .errors import (ClosedFormLimitation, DesignError, ExpressionError, ModelError, NotControllableError,
+                     SymgainError)
 from .model import Model, Parameter, TargetSpec
 from .model.toml_file import load_model, model_from_text
 
@@ -54,4 +55,5 @@ __all__ = [
     "ExpressionError",
     "DesignError",
     "NotControllableError",
+    "ClosedFormLimitation",
 ]
