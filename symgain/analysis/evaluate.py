@@ -101,7 +101,8 @@ class GainEvaluator:
         self._keyword = {name: mangle(name, PYTHON_RESERVED) for name in self.names}
         namespace: dict = {}
         exec(compile(python_module(design), f"<gains of {model.name}>", "exec"), namespace)
-        self._functions = [(namespace[fn.name], fn.shape) for fn in design_functions(design)]
+        self._functions = [(namespace[fn.name], fn.shape) for fn in design_functions(design)
+                           if not fn.name.endswith(f"_branch_{fn.branch}")]  # the branch shown, not the others
 
     def _args(self, values: dict) -> dict[str, np.ndarray]:
         unknown = set(values) - set(self.names)

@@ -76,8 +76,8 @@ def relative_sensitivities(design: Design, values: dict[str, float] | None = Non
     for part in design.parts():
         rel = {}
         for (i, j, name), deriv in table[part.part].items():
-            k = complex(part.gain[i, j].xreplace(subs).evalf()).real
-            d = complex(deriv.xreplace(subs).evalf()).real
+            k = complex(sp.sympify(part.gain[i, j].xreplace(subs)).evalf()).real
+            d = complex(sp.sympify(deriv.xreplace(subs)).evalf()).real
             rel[(i, j, name)] = float(values[name] * d / k) if k != 0 else float("nan")
         out[part.part] = rel
     return out

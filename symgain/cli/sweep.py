@@ -195,6 +195,12 @@ def run_sensitivity(args) -> int:
 
     model = load_model(args.model)
     design = derive(model)
+    free = [str(g) for part in design.parts() for g in part.free_gains]
+    if free:  # a family of gains: numbers need every gain fixed (as schedules do)
+        from ..errors import DesignError, Where
+
+        raise DesignError("gains still contain free symbols " + ", ".join(free) + "; fix them in the pattern "
+                          "before a sensitivity table", where=Where(model.source))
     table = sensitivity_table(design)
     rel = relative_sensitivities(design, table=table)
     names = [p.name for p in model.parameters]
