@@ -5,11 +5,9 @@ import argparse
 import time
 from importlib import resources
 
-from ..analysis.check import DEFAULT_TOLERANCE, check_design
-from ..design import derive
-from ..emit.json import design_to_json
-from ..model.toml_file import load_model, model_from_text
-from ..emit.terminal import format_check, format_design
+# sympy, scipy and the design stage are imported inside the commands (fast --help)
+
+DEFAULT_TOLERANCE = 1e-6  # the same as symgain.analysis.check.DEFAULT_TOLERANCE (a test keeps them equal)
 
 _FMT = argparse.RawDescriptionHelpFormatter
 
@@ -47,12 +45,20 @@ def add_to(sub) -> None:
 
 
 def run_derive(args) -> int:
+    from ..design import derive
+    from ..emit.json import design_to_json
+    from ..emit.terminal import format_design
+    from ..model.toml_file import load_model
+
     design = derive(load_model(args.model))
     print(design_to_json(design) if args.json else format_design(design), end="" if not args.json else "\n")
     return 0
 
 
 def _print_check(design, args) -> int:
+    from ..analysis.check import check_design
+    from ..emit.terminal import format_check
+
     report = check_design(design, n_points=args.points, seed=args.seed, tolerance=args.tolerance)
     print(format_check(report, [p.name for p in design.model.parameters]), end="")
     print("check passed" if report.passed else "check FAILED")
@@ -60,6 +66,9 @@ def _print_check(design, args) -> int:
 
 
 def run_check(args) -> int:
+    from ..design import derive
+    from ..model.toml_file import load_model
+
     return _print_check(derive(load_model(args.model)), args)
 
 
@@ -67,6 +76,10 @@ DEMO_FILE = "demo_conveyor.toml"
 
 
 def run_demo(args) -> int:
+    from ..design import derive
+    from ..emit.terminal import format_design
+    from ..model.toml_file import model_from_text
+
     text = resources.files("symgain.data").joinpath(DEMO_FILE).read_text(encoding="utf-8")
     start = time.perf_counter()
     model = model_from_text(text, f"<built-in {DEMO_FILE}>")

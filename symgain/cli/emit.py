@@ -3,9 +3,7 @@ from __future__ import annotations
 
 import argparse
 
-from ..design import derive
-from ..emit import TARGETS, emit
-from ..model.toml_file import load_model
+from ..emit import TARGETS  # light: the emitters themselves load on use
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
@@ -34,6 +32,10 @@ def add_to(sub) -> None:
 
 
 def run_emit(args) -> int:
+    from ..design import derive
+    from ..emit import emit
+    from ..model.toml_file import load_model
+
     design = derive(load_model(args.model))
     for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
         print(path)

@@ -5,12 +5,9 @@ import argparse
 import sys
 from contextlib import contextmanager
 
-import numpy as np
-import sympy as sp
-
-from ..design import derive
 from ..errors import ModelError
-from ..model.toml_file import load_model
+
+# numpy, sympy and the design stage load inside the commands (fast --help)
 
 _FMT = argparse.RawDescriptionHelpFormatter
 
@@ -91,6 +88,11 @@ def _folder(args, model):
 
 
 def run_schedule(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, schedule_figure
     from ..analysis.evaluate import GainEvaluator
     from ..emit.lookup_c import interpolation_errors, lookup_table_c, REFINE
@@ -130,10 +132,17 @@ def run_schedule(args) -> int:
 
 
 def _interval_text(lo: float, hi: float) -> str:
+    import numpy as np
+
     return f"({lo:.6g}, {'inf' if not np.isfinite(hi) else f'{hi:.6g}'})"
 
 
 def run_robust(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, pole_migration_figure
     from ..analysis.robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
     from ..emit.files import write_atomic
@@ -190,6 +199,11 @@ def run_robust(args) -> int:
 
 
 def run_sensitivity(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..analysis.sensitivity import relative_sensitivities, sensitivity_table
     from ..analysis.evaluate import gain_entries
 
@@ -218,6 +232,11 @@ def run_sensitivity(args) -> int:
 
 
 def run_plot(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, step_figure
     from ..emit.files import write_atomic
     from ..analysis.step_response import corner_points, step_responses
