@@ -31,8 +31,13 @@ from .single_input import design_gain
 __all__ = ["derive"]
 
 
-def derive(model: Model) -> Design:
-    """Derive every part the model asks for."""
+def derive(model: Model, form: str = "auto") -> Design:
+    """Derive every part the model asks for.
+
+    ``form`` is how single-input gains are written: "auto" (expanded formulas unless they
+    would be large, then the compact form), "expanded" or "compact" (named definitions in
+    order, see :mod:`symgain.design.compact`).
+    """
     avoid = set(model.symbols)
     feedback = estimator = integral = feedforward = None
     if model.feedback is not None:
@@ -41,15 +46,15 @@ def derive(model: Model) -> Design:
             spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
         if model.n_inputs == 1 and "pattern" not in spec.values:
             feedback = design_gain(model.A, model.B, spec, part="feedback", symbol="K",
-                                   states=model.states, avoid=avoid)
+                                   states=model.states, avoid=avoid, form=form)
         else:
             feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
                                              states=model.states, inputs=model.inputs, avoid=avoid,
                                              symbols=model.symbols)
     if model.estimator is not None:
-        estimator = design_estimator(model, avoid, feedback)
+        estimator = design_estimator(model, avoid, feedback, form=form)
     if model.integral is not None:
-        integral = design_integral(model, avoid)
+        integral = design_integral(model, avoid, form=form)
     if model.feedforward:
         feedforward = design_feedforward(model, feedback, integral)
     return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,

@@ -42,6 +42,9 @@ class GainDesign:
     free_gains: tuple[sp.Symbol, ...] = ()
     notes: tuple[str, ...] = ()
     extra: dict = field(default_factory=dict)  # more matrices of the part, e.g. integral_gain
+    # compact form: named intermediate quantities, in order; the gain is written in their symbols
+    definitions: tuple[tuple[sp.Symbol, sp.Expr], ...] = ()
+    form: str = "expanded"  # "expanded" or "compact"
 
     def step(self, name: str) -> Step:
         for st in self.steps:

@@ -53,6 +53,10 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
     rows, cols = fn.shape
     lines = [f'"""{fn.part.capitalize()} {fn.key.replace("_", " ")} {fn.label} of {model.name}: '
              f"an array of shape (..., {rows}, {cols}).", ""]
+    if fn.definitions:
+        lines.append(f"Definitions, computed in order ({len(fn.definitions)}; compact form):")
+        lines += [f"    {sp.sstr(sym)} = {sp.sstr(expr)}" for sym, expr in fn.definitions]
+        lines.append("")
     lines.append("Formulas:")
     for i in range(rows):
         for j in range(cols):
@@ -74,7 +78,8 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
 
 def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]:
     names = {a: mangle(a, PYTHON_RESERVED) for a in fn.arguments}
-    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions])
+    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions],
+                                           *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
     body = [f"def {fn.name}(*, {args}):"]
@@ -83,16 +88,27 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=numpy.float64)")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
     avoid = set(names.values()) | {"shape", "out", "numpy", "_fails"}
-    if fn.conditions:
-        conds = [c.xreplace(rename) for c in fn.conditions]
-        for cond, orig in zip(conds, fn.conditions):
-            (value,), terms = failure_rule(cond)
+    definitions = [(sym, expr.xreplace(rename)) for sym, expr in fn.definitions]
+    checks = fn.checked_after()
+
+    def test(indexes):
+        for index in indexes:
+            cond, orig = fn.conditions[index].xreplace(rename), fn.conditions[index]
+            (value,), terms = failure_rule(cond, definitions)
             scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
             body.append(f"    _fails(numpy.abs({printer.doprint(value)}) <= "
                         f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
                         f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
+
+    test(checks.get(-1, ()))
+    for k, (sym, expr) in enumerate(definitions):  # compact form: named quantities, in order
+        body.append(f"    {sym} = {printer.doprint(expr)}")
+        test(checks.get(k, ()))
     entries = [e.xreplace(rename) for e in fn.matrix]
-    replacements, reduced = shared_subexpressions(entries, avoid)
+    if definitions:  # the definitions already share what there is to share
+        replacements, reduced = [], entries
+    else:
+        replacements, reduced = shared_subexpressions(entries, avoid)
     rows, cols = fn.shape
     body.append(f"    out = numpy.empty(shape + ({rows}, {cols}))")
     statements = [(str(sym), expr) for sym, expr in replacements]

@@ -54,6 +54,10 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
         lines.append(f"  target polynomial: {format_polynomial(part.target.polynomial)}")
     for note in part.notes:
         lines.append(f"  note: {note}")
+    if part.definitions:
+        lines.append(f"  definitions, evaluated in order ({len(part.definitions)}):")
+        lines.extend(f"    {sp.sstr(sym)} = {sp.sstr(expr)}" for sym, expr in part.definitions)
+        lines.append("  gains in these definitions:")
     rl, cl = gain_labels(design.model, part.part, part.gain.rows, part.gain.cols)
     for i in range(part.gain.rows):
         for j in range(part.gain.cols):
