@@ -32,3 +32,10 @@ def test_cli_tolerance_default_matches_the_check():
     from symgain.cli.core import DEFAULT_TOLERANCE as CLI_DEFAULT
 
     assert CLI_DEFAULT == DEFAULT_TOLERANCE
+
+
+def test_cli_forms_match_the_design_stage():
+    from symgain.cli.core import FORMS
+    from symgain.design.single_input import FORMS as DESIGN_FORMS
+
+    assert FORMS == DESIGN_FORMS

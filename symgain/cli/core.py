@@ -12,6 +12,16 @@ DEFAULT_TOLERANCE = 1e-6  # the same as symgain.analysis.check.DEFAULT_TOLERANCE
 _FMT = argparse.RawDescriptionHelpFormatter
 
 
+FORMS = ("auto", "expanded", "compact")  # symgain.design.single_input.FORMS (a test keeps them equal)
+
+
+def add_form_option(p) -> None:
+    """The --form option shared by derive, check and emit."""
+    p.add_argument("--form", choices=FORMS, default="auto",
+                   help="how gains are written: expanded (one formula each), compact (a sequence of named "
+                   "definitions, for large plants) or auto (default: expanded unless it would be large)")
+
+
 def _add_check_options(p):
     p.add_argument("--points", type=int, default=20, metavar="N",
                    help="parameter points to sample, nominal included (default 20)")
@@ -27,6 +37,10 @@ def add_to(sub) -> None:
                        epilog="example:\n  symgain derive examples/greenhouse_cart.toml --json")
     p.add_argument("model", help="model file (TOML)")
     p.add_argument("--json", action="store_true", help="print the machine-readable JSON result")
+    add_form_option(p)
+    p.add_argument("--sensitivity", action="store_true",
+                   help="with --json: include the partial derivatives dK/dp also for gains in compact "
+                   "form (expanded gains always carry them)")
     p.set_defaults(run=run_derive)
 
     p = sub.add_parser("check", help="cross-check the formulas numerically against scipy",
@@ -36,6 +50,7 @@ def add_to(sub) -> None:
                        epilog="example:\n  symgain check examples/greenhouse_cart.toml --points 50")
     p.add_argument("model", help="model file (TOML)")
     _add_check_options(p)
+    add_form_option(p)
     p.set_defaults(run=run_check)
 
     p = sub.add_parser("demo", help="derive and check the built-in example", formatter_class=_FMT,
@@ -50,8 +65,8 @@ def run_derive(args) -> int:
     from ..emit.terminal import format_design
     from ..model.toml_file import load_model
 
-    design = derive(load_model(args.model))
-    print(design_to_json(design) if args.json else format_design(design), end="" if not args.json else "\n")
+    design = derive(load_model(args.model), form=args.form)
+    print(design_to_json(design, sensitivity=True if args.sensitivity else None) if args.json else format_design(design), end="" if not args.json else "\n")
     return 0
 
 
@@ -69,7 +84,7 @@ def run_check(args) -> int:
     from ..design import derive
     from ..model.toml_file import load_model
 
-    return _print_check(derive(load_model(args.model)), args)
+    return _print_check(derive(load_model(args.model), form=args.form), args)
 
 
 DEMO_FILE = "demo_conveyor.toml"

@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 
 from ..emit import TARGETS  # light: the emitters themselves load on use
+from .core import add_form_option
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
@@ -28,6 +29,7 @@ def add_to(sub) -> None:
                    help="file name, Python module and C prefix (default: the model's name)")
     p.add_argument("--precision", choices=("double", "single"), default="double",
                    help="C floating-point type: double (default) or single (float)")
+    add_form_option(p)
     p.set_defaults(run=run_emit)
 
 
@@ -36,7 +38,7 @@ def run_emit(args) -> int:
     from ..emit import emit
     from ..model.toml_file import load_model
 
-    design = derive(load_model(args.model))
+    design = derive(load_model(args.model), form=args.form)
     for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
         print(path)
     return 0

@@ -183,7 +183,7 @@ class Field:
         """Convert a rational expression in the atoms into a field element."""
         gens = self._stand_ins
         expr = sp.sympify(expr).xreplace({a: g for a, g in zip(self.atoms, gens) if a is not g})
-        num, den = sp.fraction(sp.cancel(sp.together(expr)))
+        num, den = sp.fraction(sp.together(expr))  # FLINT cancels the common factors
         return Fraction(self._poly(sp.expand(num), gens), self._poly(sp.expand(den), gens))
 
     def poly_to_expr(self, poly) -> sp.Expr:

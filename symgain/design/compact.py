@@ -22,13 +22,22 @@ vanish (their product is, up to sign, det Ctrb). These pivots are the validity
 conditions.
 
 >>> import sympy as sp
->>> m, c, w = sp.symbols("m c w", positive=True)
->>> A = sp.Matrix([[0, 1, 0], [0, 0, 1], [0, -c/m, -c/m]]); B = sp.Matrix([[0], [0], [1/m]])
->>> form = compact_single_input(A, B, [3*w, 3*w**2, w**3], avoid={"m", "c", "w"})
->>> form.definitions, form.pivots
-(((ab2_3, c**2/m**3 - c/m**2),), (1/m, 1/m, 1/m))
+>>> m, c, k, w = sp.symbols("m c k w", positive=True)
+>>> A = sp.Matrix([[0, 1, 0], [-k/m, -c/m, k/m], [k/m, 0, -k/m - c/m]]); B = sp.Matrix([[0], [1/m], [0]])
+>>> form = compact_single_input(A, B, [3*w, 3*w**2, w**3], avoid={"m", "c", "k", "w"})
+>>> for name, value in form.definitions:
+...     print(name, "=", value)
+a3_3 = -c/m - k/m
+h1_3 = a3_3*m**2/k + 3*m**2*w/k
+h2_3 = a3_3*h1_3 + 3*m**2*w**2/k
 >>> form.gain
-Matrix([[m*w**3, -c + 3*m*w**2, -c + 3*m*w]])
+Matrix([[h2_3*k/m - k, -c + h1_3*k/m, a3_3*h2_3 + k + m**2*w**3/k]])
+>>> form.pivots
+(k/m**2, 1/m, 1/m)
+>>> from symgain.design.placement import ackermann  # the same gain, expanded
+>>> S = sp.Symbol("s")
+>>> sp.simplify(substitute(form.gain, form.definitions) - ackermann(A, B, (S + w)**3))
+Matrix([[0, 0, 0]])
 """
 from __future__ import annotations
 
@@ -40,7 +49,8 @@ import sympy as sp
 
 from .algebra import rational_atoms
 
-__all__ = ["CompactForm", "compact_single_input", "substitute", "exact_values", "random_point"]
+__all__ = ["CompactForm", "compact_single_input", "substitute", "exact_values", "random_point",
+           "forward_derivatives", "numeric_function"]
 
 
 @dataclass(frozen=True)
@@ -104,17 +114,33 @@ def substitute(matrix, definitions):
     return out
 
 
-class _Builder:
-    """Names intermediate quantities and keeps their exact values at the random point."""
+def nominal_point(exprs, nominal: dict, fallback: dict) -> dict[sp.Expr, Fraction]:
+    """Exact rationals of the nominal values (as written in decimal) for the atoms of ``exprs``;
+    an atom without a nominal value keeps its value from ``fallback``."""
+    out = {}
+    for atom in rational_atoms(exprs):
+        try:
+            out[atom] = Fraction(str(float(atom.xreplace(nominal))))
+        except (TypeError, ValueError):
+            out[atom] = fallback[atom]
+    return out
 
-    def __init__(self, avoid: set[str], values: dict):
+
+class _Builder:
+    """Names intermediate quantities and keeps their exact values at two points:
+    a random one (the proof that a pivot is not identically zero) and the nominal one."""
+
+    def __init__(self, avoid: set[str], values: dict, nominal: dict):
         self.avoid = set(avoid)
-        self.values = values
+        self.values, self.nominal = values, nominal
         self.definitions: list[tuple[sp.Symbol, sp.Expr]] = []
 
-    def name(self, label: str, expr: sp.Expr) -> tuple[sp.Expr, Fraction]:
-        """``(symbol or expr, exact value)``; a sum gets a name, a product stays inline."""
-        value = _value(expr, self.values)
+    def value(self, expr: sp.Expr) -> tuple[Fraction, Fraction]:
+        return _value(expr, self.values), _value(expr, self.nominal)
+
+    def name(self, label: str, expr: sp.Expr) -> tuple[sp.Expr, tuple[Fraction, Fraction]]:
+        """``(symbol or expr, exact values)``; a sum gets a name, a product stays inline."""
+        value = self.value(expr)
         if not expr.has(sp.Add):
             return expr, value
         while label in self.avoid:
@@ -122,22 +148,34 @@ class _Builder:
         self.avoid.add(label)
         sym = sp.Symbol(label)
         self.definitions.append((sym, expr))
-        self.values[sym] = value
+        self.values[sym], self.nominal[sym] = value
         return sym, value
 
 
+THRESHOLD = 0.1  # threshold pivoting at the nominal point (common practice in sparse LU)
+
+
 def _markowitz(rows: dict, active_rows: set, active_cols: set):
-    """(row, col) of the pivot: fewest fill-ins, then the fewest operations, among nonzero values."""
+    """(row, col) of the pivot: fewest fill-ins, then the fewest operations.
+
+    Candidates are nonzero at the random point and at the nominal point, and at the
+    nominal point at least THRESHOLD times the largest candidate of their column
+    (threshold partial pivoting, for accuracy in floating point). When no entry is
+    nonzero at the nominal point, the nominal tests are dropped.
+    """
     counts: dict[int, int] = {}
+    biggest: dict[int, Fraction] = {}
     for i in active_rows:
-        for j in rows[i]:
+        for j, (_, (_, vn)) in rows[i].items():
             if j in active_cols:
                 counts[j] = counts.get(j, 0) + 1
+                biggest[j] = max(biggest.get(j, Fraction(0)), abs(vn))
+    nominal_ok = any(biggest.values())
     best = None
     for i in sorted(active_rows):
         entries = {j: v for j, v in rows[i].items() if j in active_cols}
-        for j, (expr, value) in sorted(entries.items()):
-            if value == 0:
+        for j, (expr, (value, vn)) in sorted(entries.items()):
+            if value == 0 or (nominal_ok and (vn == 0 or abs(vn) < THRESHOLD * biggest[j])):
                 continue
             key = ((len(entries) - 1) * (counts[j] - 1), sp.count_ops(expr), i, j)
             if best is None or key < best:
@@ -146,18 +184,21 @@ def _markowitz(rows: dict, active_rows: set, active_cols: set):
 
 
 def compact_single_input(A: sp.Matrix, B: sp.Matrix, alpha, avoid: set[str] = frozenset(),
-                         seed: int = 0) -> CompactForm:
+                         seed: int = 0, nominal: dict | None = None) -> CompactForm:
     """The compact form of K with det(sI - A + B K) = s^n + alpha_1 s^(n-1) + ... + alpha_n.
+
+    ``nominal`` (symbol -> number) steers the pivot choice so that the formulas hold
+    and are accurate at the nominal point (see :func:`_markowitz`).
 
     Raises ``ZeroDivisionError`` when no nonzero pivot is left (the plant is not
     controllable at the random point, hence, with high probability, nowhere).
     """
     n = A.rows
     values = random_point([*A, *B, *alpha], seed)
-    build = _Builder(avoid, values)
+    build = _Builder(avoid, values, nominal_point([*A, *B, *alpha], nominal or {}, values))
     Aentries = {(i, k): build.name(f"a{i + 1}_{k + 1}", A[i, k]) for i in range(n) for k in range(n)
                 if A[i, k] != 0}  # sums among the plant's entries get a name once
-    col = {i: (B[i, 0], _value(B[i, 0], values)) for i in range(n) if B[i, 0] != 0}
+    col = {i: (B[i, 0], build.value(B[i, 0])) for i in range(n) if B[i, 0] != 0}
     rows = {0: dict(col)}  # rows of Ctrb^T: row j = A^j b
     for j in range(1, n):
         new = {}
@@ -168,7 +209,7 @@ def compact_single_input(A: sp.Matrix, B: sp.Matrix, alpha, avoid: set[str] = fr
                 new[i] = build.name(f"ab{j}_{i + 1}", expr)
         col = new
         rows[j] = dict(new)
-    rhs = {n - 1: (sp.Integer(1), Fraction(1))}
+    rhs = {n - 1: (sp.Integer(1), (Fraction(1), Fraction(1)))}
     active_rows, active_cols = set(range(n)), set(range(n))
     steps, pivots = [], []
     for k in range(1, n + 1):
@@ -227,3 +268,54 @@ def _needed(definitions, roots) -> tuple:
             keep.append((sym, expr))
             wanted |= expr.free_symbols
     return tuple(reversed(keep))
+
+
+def forward_derivatives(definitions, exprs, parameter: sp.Symbol, avoid: set[str] = frozenset()):
+    """d/d(parameter) of ``exprs`` on the compact form, by forward differentiation.
+
+    Each definition ``t = f(p, earlier t)`` gets ``d_t_p = df/dp + sum df/dt' d_t'_p``
+    (sympy's diff on the one short definition only, never on an expanded formula).
+    Returns ``(new definitions, derivatives of exprs)``; the new definitions use
+    the old ones and come after them.
+
+    >>> p, t = sp.symbols("p t")
+    >>> forward_derivatives([(t, p**2 + 1)], [t / p], p)  # d_t_p = 2 p is short: inlined
+    ((), [2 - t/p**2])
+    """
+    taken = set(avoid) | {str(s) for s, _ in definitions}
+    derivative: dict[sp.Symbol, sp.Expr] = {}
+    new = []
+
+    def total(expr):
+        out = sp.diff(expr, parameter)
+        for sym in expr.free_symbols & derivative.keys():
+            out += sp.diff(expr, sym) * derivative[sym]
+        return out
+
+    for sym, expr in definitions:
+        d = total(expr)
+        if d == 0:
+            continue
+        if d.has(sp.Add):
+            label = f"d_{sym}_{parameter}"
+            while label in taken:
+                label += "_"
+            taken.add(label)
+            name = sp.Symbol(label)
+            new.append((name, d))
+            d = name
+        derivative[sym] = d
+    return tuple(new), [total(sp.sympify(e)) for e in exprs]
+
+
+def numeric_function(args, exprs, definitions=(), modules="numpy"):
+    """``sympy.lambdify`` of ``exprs`` that first computes the definitions, in order.
+
+    >>> x, t = sp.symbols("x t")
+    >>> numeric_function([x], [t * 2], [(t, x + 1)])(2.0)
+    [6.0]
+    """
+    definitions = list(definitions)
+    if not definitions:
+        return sp.lambdify(args, exprs, modules=modules)
+    return sp.lambdify(args, exprs, modules=modules, cse=lambda e: (definitions, e))

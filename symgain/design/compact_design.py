@@ -3,13 +3,13 @@
 >>> import sympy as sp
 >>> from symgain.model import TargetSpec
 >>> from symgain.design.targets import resolve_target
->>> m, c, w = sp.symbols("m c w", positive=True)
->>> A = sp.Matrix([[0, 1, 0], [0, 0, 1], [0, -c/m, -c/m]]); B = sp.Matrix([[0], [0], [1/m]])
+>>> m, c, k, w = sp.symbols("m c k w", positive=True)
+>>> A = sp.Matrix([[0, 1, 0], [-k/m, -c/m, k/m], [k/m, 0, -k/m - c/m]]); B = sp.Matrix([[0], [1/m], [0]])
 >>> target = resolve_target(TargetSpec("poles", {"poles": (-w, -w, -w)}), 3)
 >>> part = compact_design(A, B, target, part="feedback", symbol="K", states=("x", "v", "a"),
-...                       avoid={"m", "c", "w"})
+...                       avoid={"m", "c", "k", "w"})
 >>> part.form, [str(s) for s, _ in part.definitions]
-('compact', ['ab2_3'])
+('compact', ['a3_3', 'h1_3', 'h2_3'])
 >>> part.valid_when
 ()
 """
@@ -43,7 +43,7 @@ def _determinant(A: sp.Matrix, B: sp.Matrix):
 
 def compact_design(A: sp.Matrix, B: sp.Matrix, target, *, part: str, symbol: str, states,
                    avoid: set[str], word: str = "controllable", chosen_over: int | None = None,
-                   unreachable=None, where=None) -> GainDesign:
+                   unreachable=None, where=None, nominal: dict | None = None) -> GainDesign:
     """The part in compact form; ``chosen_over``: the term limit when "auto" picked it."""
     n = A.rows
     matrix_word = "controllability" if word == "controllable" else "observability"
@@ -52,7 +52,7 @@ def compact_design(A: sp.Matrix, B: sp.Matrix, target, *, part: str, symbol: str
     try:
         if det == 0:
             raise ZeroDivisionError
-        form = compact_single_input(A, B, alpha, avoid=set(avoid))
+        form = compact_single_input(A, B, alpha, avoid=set(avoid), nominal=nominal)
     except ZeroDivisionError:
         raise NotControllableError(
             f"the plant is not {word} for any parameter values (the {matrix_word} matrix is singular)"

@@ -39,6 +39,7 @@ def derive(model: Model, form: str = "auto") -> Design:
     order, see :mod:`symgain.design.compact`).
     """
     avoid = set(model.symbols)
+    nominal = {p.symbol: p.nominal for p in model.parameters if p.nominal is not None}
     feedback = estimator = integral = feedforward = None
     if model.feedback is not None:
         spec = model.feedback
@@ -46,15 +47,15 @@ def derive(model: Model, form: str = "auto") -> Design:
             spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
         if model.n_inputs == 1 and "pattern" not in spec.values:
             feedback = design_gain(model.A, model.B, spec, part="feedback", symbol="K",
-                                   states=model.states, avoid=avoid, form=form)
+                                   states=model.states, avoid=avoid, form=form, nominal=nominal)
         else:
             feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
                                              states=model.states, inputs=model.inputs, avoid=avoid,
                                              symbols=model.symbols)
     if model.estimator is not None:
-        estimator = design_estimator(model, avoid, feedback, form=form)
+        estimator = design_estimator(model, avoid, feedback, form=form, nominal=nominal)
     if model.integral is not None:
-        integral = design_integral(model, avoid, form=form)
+        integral = design_integral(model, avoid, form=form, nominal=nominal)
     if model.feedforward:
         feedforward = design_feedforward(model, feedback, integral)
     return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,

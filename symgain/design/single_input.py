@@ -47,11 +47,13 @@ def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no 
 
 
 def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symbol: str,
-                states, avoid: set[str], word: str = "controllable", form: str = "auto") -> GainDesign:
+                states, avoid: set[str], word: str = "controllable", form: str = "auto",
+                nominal: dict | None = None) -> GainDesign:
     """Single-input placement for A - B K against the target in ``spec``.
 
     ``form``: "expanded" (each gain one formula), "compact" (a sequence of named
     definitions, :mod:`symgain.design.compact`) or "auto" (expanded unless it would be large).
+    ``nominal`` (symbol -> number): the compact form picks pivots that do not vanish there.
     """
     n = A.rows
     if B.cols != 1:
@@ -72,7 +74,7 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
 
         return compact_design(A, B, target, part=part, symbol=symbol, states=states, avoid=avoid,
                               word=word, chosen_over=EXPANDED_LIMIT if form == "auto" else None,
-                              unreachable=_unreachable_directions, where=spec.where)
+                              unreachable=_unreachable_directions, where=spec.where, nominal=nominal)
     det_num, det_den = result.controllability_det
     if det_num == 0:
         raise NotControllableError(

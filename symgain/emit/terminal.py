@@ -14,7 +14,10 @@ from __future__ import annotations
 
 import sympy as sp
 
-from ..analysis.check import CheckReport
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # scipy loads only for the commands that check
+    from ..analysis.check import CheckReport
 from ..design import Design, GainDesign, gain_labels
 from ..model import S
 
