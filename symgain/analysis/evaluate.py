@@ -30,6 +30,7 @@ import numpy as np
 import sympy as sp
 
 from ..design import Design, gain_labels
+from ..design.compact import numeric_function
 from ..errors import DesignError, ModelError, Where
 
 __all__ = ["GainEntry", "gain_entries", "gain_functions", "GainEvaluator"]
@@ -85,20 +86,31 @@ class GainEvaluator:
         self.entries = gain_entries(design)
         if not self.entries:
             raise DesignError("the model asks for no gain to evaluate", where=Where(model.source))
-        free = set().union(*(e.expr.free_symbols for e in self.entries)) - set(model.symbols.values())
+        definitions = [d for part in design.parts() for d in part.definitions]  # compact forms
+        named = {sym for sym, _ in definitions}
+        free = set().union(*(e.expr.free_symbols for e in self.entries)) - set(model.symbols.values()) - named
         if free:
             raise DesignError("gains still contain free symbols " + ", ".join(sorted(map(str, free)))
                               + "; fix them before sweeping", where=Where(model.source))
         self.names = [p.name for p in model.parameters]
         self.nominal = model.nominal_values()
         args = [p.symbol for p in model.parameters]
-        self._gains = sp.lambdify(args, [e.expr for e in self.entries], modules="numpy", cse=True)
+        if definitions:  # the definitions are the shared subexpressions, computed in order
+            self._gains = numeric_function(args, [e.expr for e in self.entries], definitions)
+        else:
+            self._gains = sp.lambdify(args, [e.expr for e in self.entries], modules="numpy", cse=True)
+        by_name = dict(definitions)
         self.conditions = list(design.valid_when)
         self.tol = tol
         self._conditions = []
         for cond in self.conditions:
             if isinstance(cond, sp.Ne):
-                f = sp.expand(cond.lhs - cond.rhs)
+                f = cond.lhs - cond.rhs
+                if f in by_name:  # a pivot of a compact form: scaled by the terms of its definition
+                    terms = list(sp.Add.make_args(by_name[f]))
+                    self._conditions.append(("ne", numeric_function(args, [f, *terms], definitions)))
+                    continue
+                f = sp.expand(f)
                 terms = list(sp.Add.make_args(f))
                 self._conditions.append(("ne", sp.lambdify(args, [f, *terms], modules="numpy", cse=True)))
             else:

@@ -209,7 +209,7 @@ def run_sensitivity(args) -> int:
 
     model = load_model(args.model)
     design = derive(model)
-    table = sensitivity_table(design)
+    table, added = sensitivity_table(design, with_definitions=True)
     rel = relative_sensitivities(design, table=table)
     names = [p.name for p in model.parameters]
     print(f"{model.name}: relative sensitivity (p/K) dK/dp at nominal "
@@ -223,6 +223,11 @@ def run_sensitivity(args) -> int:
     print("(+1.000: the gain grows in proportion to the parameter; nan: the gain is zero there)")
     if args.formulas:
         print("partial derivatives in closed form:")
+        for part in design.parts():
+            if part.definitions:
+                print(f"  {part.part} gain in compact form; definitions, evaluated in order:")
+                for sym, expr in (*part.definitions, *added[part.part]):
+                    print(f"    {sp.sstr(sym)} = {sp.sstr(expr)}")
         for e in entries:
             for n in names:
                 d = table[e.part][(e.row, e.col, n)]

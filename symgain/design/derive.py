@@ -52,8 +52,11 @@ def derive(model: Model, form: str = "auto") -> Design:
             feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
                                              states=model.states, inputs=model.inputs, avoid=avoid,
                                              symbols=model.symbols)
+    if feedback is not None:  # names of a compact form stay distinct across parts
+        avoid |= {str(sym) for sym, _ in feedback.definitions}
     if model.estimator is not None:
         estimator = design_estimator(model, avoid, feedback, form=form, nominal=nominal)
+        avoid |= {str(sym) for sym, _ in estimator.definitions}
     if model.integral is not None:
         integral = design_integral(model, avoid, form=form, nominal=nominal)
     if model.feedforward:
