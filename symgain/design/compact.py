@@ -6,10 +6,11 @@ builds the same exact gains without expanding anything, as a straight-line
 sequence of definitions, each a few operations of the parameters and of
 earlier definitions:
 
-0. the plant entries that are sums, ``a{i}_{j}`` = A[i, j];
+0. the plant entries ``a{i}_{j}`` = A[i, j], ``b{i}`` = B[i, 0] and the target coefficients
+   ``alpha{k}``, each computed once;
 1. the controllability columns ``ab{j}_{i}`` = entry i of A^j b (j = 0 .. n-1);
-2. a fixed-pivot Gaussian elimination of Ctrb^T q = e_n (entries ``u{k}_{i}_{j}``
-   after step k, right-hand sides ``r{k}_{i}``), then back substitution for
+2. a fixed-pivot Gaussian elimination of Ctrb^T q = e_n (multipliers ``f{k}_{i}``, entries
+   ``u{k}_{i}_{j}`` after step k, right-hand sides ``r{k}_{i}``), then back substitution for
    ``q{i}``: q^T = e_n^T Ctrb^-1, the last row of the inverse controllability matrix;
 3. Ackermann's formula K = q^T alpha(A) by Horner's rule on the row vector:
    ``h{k}_{j}`` = (q^T (A^k + alpha_1 A^(k-1) + ... + alpha_k I))_j, and K = h_n.
@@ -27,13 +28,22 @@ conditions.
 >>> form = compact_single_input(A, B, [3*w, 3*w**2, w**3], avoid={"m", "c", "k", "w"})
 >>> for name, value in form.definitions:
 ...     print(name, "=", value)
+a2_1 = -k/m
+a2_2 = -c/m
+a2_3 = k/m
+a3_1 = k/m
 a3_3 = -c/m - k/m
-h1_3 = a3_3*m**2/k + 3*m**2*w/k
-h2_3 = a3_3*h1_3 + 3*m**2*w**2/k
+b2 = 1/m
+alpha1 = 3*w
+alpha2 = 3*w**2
+alpha3 = w**3
+q3 = 1/(a3_1*b2)
+h1_3 = a3_3*q3 + alpha1*q3
+h2_3 = a3_3*h1_3 + alpha2*q3
 >>> form.gain
-Matrix([[h2_3*k/m - k, -c + h1_3*k/m, a3_3*h2_3 + k + m**2*w**3/k]])
+Matrix([[a2_1*a3_1*q3 + a3_1*h2_3, a2_2*a3_1*q3 + a3_1*h1_3, a2_3*a3_1*q3 + a3_3*h2_3 + alpha3*q3]])
 >>> form.pivots
-(k/m**2, 1/m, 1/m)
+(a3_1*b2, b2, b2)
 >>> from symgain.design.placement import ackermann  # the same gain, expanded
 >>> S = sp.Symbol("s")
 >>> sp.simplify(substitute(form.gain, form.definitions) - ackermann(A, B, (S + w)**3))
@@ -138,10 +148,11 @@ class _Builder:
     def value(self, expr: sp.Expr) -> tuple[Fraction, Fraction]:
         return _value(expr, self.values), _value(expr, self.nominal)
 
-    def name(self, label: str, expr: sp.Expr) -> tuple[sp.Expr, tuple[Fraction, Fraction]]:
-        """``(symbol or expr, exact values)``; a sum gets a name, a product stays inline."""
+    def name(self, label: str, expr: sp.Expr, always: bool = False) -> tuple[sp.Expr, tuple[Fraction, Fraction]]:
+        """``(symbol or expr, exact values)``; a sum gets a name, a product stays inline
+        unless ``always`` (then only numbers and single symbols stay inline)."""
         value = self.value(expr)
-        if not expr.has(sp.Add):
+        if expr.is_Symbol or expr.is_Number or not (always or expr.has(sp.Add)):
             return expr, value
         while label in self.avoid:
             label += "_"
@@ -196,9 +207,10 @@ def compact_single_input(A: sp.Matrix, B: sp.Matrix, alpha, avoid: set[str] = fr
     n = A.rows
     values = random_point([*A, *B, *alpha], seed)
     build = _Builder(avoid, values, nominal_point([*A, *B, *alpha], nominal or {}, values))
-    Aentries = {(i, k): build.name(f"a{i + 1}_{k + 1}", A[i, k]) for i in range(n) for k in range(n)
-                if A[i, k] != 0}  # sums among the plant's entries get a name once
-    col = {i: (B[i, 0], build.value(B[i, 0])) for i in range(n) if B[i, 0] != 0}
+    Aentries = {(i, k): build.name(f"a{i + 1}_{k + 1}", A[i, k], always=True) for i in range(n)
+                for k in range(n) if A[i, k] != 0}  # each plant entry is computed once
+    col = {i: build.name(f"b{i + 1}", B[i, 0], always=True) for i in range(n) if B[i, 0] != 0}
+    alpha = [build.name(f"alpha{k}", sp.sympify(a), always=True)[0] for k, a in enumerate(alpha, start=1)]
     rows = {0: dict(col)}  # rows of Ctrb^T: row j = A^j b
     for j in range(1, n):
         new = {}
@@ -224,7 +236,7 @@ def compact_single_input(A: sp.Matrix, B: sp.Matrix, alpha, avoid: set[str] = fr
         for i in sorted(active_rows):
             if pj not in rows[i]:
                 continue
-            factor = rows[i].pop(pj)[0] / pivot
+            factor = build.name(f"f{k}_{i + 1}", rows[i].pop(pj)[0] / pivot, always=True)[0]
             for j, (v, _) in rows[pi].items():
                 if j in active_cols:
                     old = rows[i].get(j, (sp.Integer(0), 0))[0]
@@ -245,7 +257,7 @@ def compact_single_input(A: sp.Matrix, B: sp.Matrix, alpha, avoid: set[str] = fr
         acc = rhs.get(pi, (sp.Integer(0), 0))[0]
         acc = acc - sp.Add(*[v * q[j] for j, (v, _) in rows[pi].items() if j != pj and j in q])
         if acc != 0:
-            q[pj] = build.name(f"q{pj + 1}", acc / rows[pi][pj][0])[0]
+            q[pj] = build.name(f"q{pj + 1}", acc / rows[pi][pj][0], always=True)[0]
     row = dict(q)
     for k, a in enumerate(alpha, start=1):  # Horner: row <- row A + alpha_k q^T
         new = {}

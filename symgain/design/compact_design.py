@@ -9,7 +9,7 @@
 >>> part = compact_design(A, B, target, part="feedback", symbol="K", states=("x", "v", "a"),
 ...                       avoid={"m", "c", "k", "w"})
 >>> part.form, [str(s) for s, _ in part.definitions]
-('compact', ['a3_3', 'h1_3', 'h2_3'])
+('compact', ['a2_1', 'a2_2', 'a2_3', 'a3_1', 'a3_3', 'b2', 'alpha1', 'alpha2', 'alpha3', 'q3', 'h1_3', 'h2_3'])
 >>> part.valid_when
 ()
 """
@@ -58,9 +58,22 @@ def compact_design(A: sp.Matrix, B: sp.Matrix, target, *, part: str, symbol: str
             f"the plant is not {word} for any parameter values (the {matrix_word} matrix is singular)"
             + (unreachable(A, B, states, "no input moves" if word == "controllable" else "no output sees")
                if unreachable else ""), where=where) from None
-    defined = {s for s, _ in form.definitions}
-    named = [p for p in form.pivots if p in defined]
-    short = [p for p in form.pivots if p not in defined and not provably_nonzero(p)]
+    defined = dict(form.definitions)
+    products = {s: e for s, e in form.definitions if not e.has(sp.Add)}  # b2 = 1/m, a3_1 = k/m
+    named, short = [], []
+    for pivot in form.pivots:  # a pivot vanishes exactly where one of its factors does
+        for _ in range(len(products) + 1):
+            if not pivot.free_symbols & products.keys():
+                break
+            pivot = pivot.xreplace(products)
+        for factor in sp.Mul.make_args(pivot):
+            base = factor.base if factor.is_Pow and factor.exp.is_Integer else factor
+            if base in defined:
+                plain = not defined[base].free_symbols & defined.keys()  # in the parameters only
+                if not (plain and provably_nonzero(defined[base])):
+                    named.append(base)
+            elif not base.is_number and not provably_nonzero(base):
+                short.append(base)
     valid = nonzero_conditions(short) + tuple(sp.Ne(p, 0) for p in dict.fromkeys(named))
     Ksym = gain_symbols(symbol.lower(), (1, n), avoid)
     why = (f"chosen because the expanded formulas would be large (more than {chosen_over} terms in an "
