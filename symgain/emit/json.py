@@ -37,6 +37,9 @@ def _part(part: GainDesign, sensitivity: dict | None = None, added=()) -> dict:
     out = {"form": part.form}
     if part.definitions:
         out["definitions"] = [[str(s), sp.sstr(e)] for s, e in part.definitions]
+        for step in part.steps:  # compact form: det Ctrb, factored, where it was affordable
+            if step.name.endswith("_determinant"):
+                out[step.name] = sp.sstr(step.value)
     out |= {"gain": _matrix(part.gain), "valid_when": [sp.sstr(c) for c in part.valid_when]}
     for key, value in part.extra.items():
         if key == "gain_symbols":

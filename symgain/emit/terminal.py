@@ -71,6 +71,11 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
             for i in range(value.rows):
                 for j in range(value.cols):
                     lines.append(f"  {key}[{rl[i]}, {cl[j]}] = {sp.sstr(value[i, j])}")
+    if part.definitions:
+        for step in part.steps:
+            if step.name.endswith("_determinant"):
+                lines.append(f"  {step.title} (factored; the product of the pivots up to sign): "
+                             f"{sp.sstr(step.value)}")
     if part.free_gains:
         lines.append("  free gains (not fixed by the target): " + ", ".join(map(str, part.free_gains)))
     if part.valid_when:
