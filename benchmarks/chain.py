@@ -81,3 +81,23 @@ def chain_model(n: int):
     # the declared symbols carry the same name and assumptions as the chain's
     return Model(name=f"chain_{n}", parameters=(*params, wp), states=chain.states, inputs=("F",),
                  A=chain.A, B=chain.B, feedback=TargetSpec("poles", {"poles": (-w,) * (2 * n)}))
+
+
+def chain_toml(n: int) -> str:
+    """The chain as model-file text (TOML), for timing whole commands.
+
+    >>> "m_2 = " in chain_toml(2) and 'poles = ["-w", "-w", "-w", "-w"]' in chain_toml(2)
+    True
+    """
+    chain = carriage_chain(n)
+    size = 2 * n
+    lines = [f'name = "chain_{n}"', f'title = "Chain of {n} carriages joined by springs and dampers"',
+             "", "[parameters]"]
+    lines += [f'{p} = {{ sign = "positive", range = [1, 2] }}' for p in chain.parameters]
+    lines.append('w = { sign = "positive", range = [1, 3], role = "design" }')
+    lines += ["", "[plant]", f"states = {list(chain.states)!r}".replace("'", '"'), 'inputs = ["F"]']
+    rows = ["[" + ", ".join(f'"{sp.sstr(chain.A[i, j])}"' for j in range(size)) + "]" for i in range(size)]
+    lines.append("A = [" + ",\n     ".join(rows) + "]")
+    lines.append("B = [" + ", ".join(f'["{sp.sstr(chain.B[i, 0])}"]' for i in range(size)) + "]")
+    lines += ["", "[feedback]", "poles = [" + ", ".join(['"-w"'] * size) + "]"]
+    return "\n".join(lines) + "\n"

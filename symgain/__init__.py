@@ -24,14 +24,34 @@ Matrix([[m*w**2, 2*m*w]])
 >>> symgain.check_design(design, n_points=5).passed
 True
 """
-from .model.builders import model_from_equations, model_from_matrices
-from .analysis.check import CheckReport, check_design
-from .design import Design, GainDesign, derive
-from .emit.json import design_to_dict, design_to_json
-from .errors import (ClosedFormLimitation, DesignError, ExpressionError, ModelError, NotControllableError,
-                     SymgainError)
-from .model import Model, Parameter, TargetSpec
-from .model.toml_file import load_model, model_from_text
+import importlib
+
+# Names are imported on first use (PEP 562), so that ``symgain --help`` does not load
+# sympy, scipy or matplotlib; ``from symgain import derive`` works as usual.
+_EXPORTS = {
+    "model_from_equations": "symgain.model.builders", "model_from_matrices": "symgain.model.builders",
+    "CheckReport": "symgain.analysis.check", "check_design": "symgain.analysis.check",
+    "Design": "symgain.design", "GainDesign": "symgain.design", "derive": "symgain.design",
+    "design_to_dict": "symgain.emit.json", "design_to_json": "symgain.emit.json",
+    "DesignError": "symgain.errors", "ExpressionError": "symgain.errors", "ModelError": "symgain.errors",
+    "NotControllableError": "symgain.errors", "SymgainError": "symgain.errors",
+    "ClosedFormLimitation": "symgain.errors",
+    "Model": "symgain.model", "Parameter": "symgain.model", "TargetSpec": "symgain.model",
+    "load_model": "symgain.model.toml_file", "model_from_text": "symgain.model.toml_file",
+}
+
+
+def __getattr__(name: str):
+    if name in _EXPORTS:
+        value = getattr(importlib.import_module(_EXPORTS[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'symgain' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted([*globals(), *_EXPORTS])
+
 
 __version__ = "0.1.0"
 

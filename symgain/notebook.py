@@ -63,7 +63,11 @@ def design_markdown(design) -> str:
     model = design.model
     lines = [f"**{model.name}**" + (f": {_escape(model.title)}" if model.title else ""), ""]
     for part in design.parts():
-        lines += [f"*{part.part} gain {part.symbol}*", "", f"$${part.symbol} = {_math(part.gain)}$$"]
+        lines += [f"*{part.part} gain {part.symbol}*", ""]
+        if part.definitions:  # compact form: the definitions in order, then the gain in their names
+            lines += [f"definitions, evaluated in order ({len(part.definitions)}):", ""]
+            lines += [f"$${_math(sym)} = {_math(expr)}$$" for sym, expr in part.definitions]
+        lines.append(f"$${part.symbol} = {_math(part.gain)}$$")
         for key, value in part.extra.items():
             if isinstance(value, sp.MatrixBase) and key != "gain_symbols":
                 lines.append(f"$$\\text{{{key}}} = {_math(value)}$$")

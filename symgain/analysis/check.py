@@ -150,9 +150,13 @@ def _distinct(roots, rel=1e-3) -> bool:
     return True
 
 
-def _evaluator(model: Model, expr, free=()):
+def _evaluator(model: Model, expr, free=(), definitions=()):
+    """A numpy function of the parameters (then the free gains); a compact form's
+    definitions are computed first, in order."""
+    from ..design.compact import numeric_function
+
     names = [p.symbol for p in model.parameters] + list(free)
-    return sp.lambdify(names, expr, modules="numpy")
+    return numeric_function(names, expr, definitions)
 
 
 def _free_values(free, seed: int, idx: int) -> dict:
@@ -178,8 +182,10 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
     full = part.gain
     if part.part == "integral":
         full = sp.Matrix.hstack(sp.Matrix(part.gain), sp.Matrix(part.extra["integral_gain"]))
-    f_gain = _evaluator(model, full, free)
-    f_K = _evaluator(model, feedback.gain, free) if part.part == "feedforward" else None
+    f_gain = _evaluator(model, full, free, part.definitions)
+    f_K = _evaluator(model, feedback.gain, free, feedback.definitions) if part.part == "feedforward" else None
+    named = [sym for sym, _ in part.definitions]
+    f_named = _evaluator(model, named, free, part.definitions) if named else None
     f_target = _evaluator(model, sp.Poly(part.target.polynomial, S).all_coeffs()) if part.target else None
     unique = (full.rows == 1 or full.cols == 1) and not free and "direction" not in part.extra
     if part.target is not None:  # repeated target roots: scipy's place_poles is not comparable
@@ -192,6 +198,9 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
         fvals = _free_values(free, seed, idx)
         fargs = args + [fvals[g] for g in free]
         values = {p.symbol: point[p.name] for p in model.parameters} | fvals
+        if f_named is not None:  # the pivots of a compact form are named quantities
+            with np.errstate(all="ignore"):
+                values |= dict(zip(named, (float(v) for v in f_named(*fargs))))
         failed = holds_at(part.valid_when, values)
         if failed:
             results.append(PointResult(idx, point, "skipped", None, None, "fails " + ", ".join(failed)))

@@ -91,7 +91,8 @@ class GainEvaluator:
         self.entries = gain_entries(design)
         if not self.entries:
             raise DesignError("the model asks for no gain to evaluate", where=Where(model.source))
-        free = set().union(*(e.expr.free_symbols for e in self.entries)) - set(model.symbols.values())
+        named = {sym for part in design.parts() for sym, _ in part.definitions}  # compact forms
+        free = set().union(*(e.expr.free_symbols for e in self.entries)) - set(model.symbols.values()) - named
         if free:
             raise DesignError("gains still contain free symbols " + ", ".join(sorted(map(str, free)))
                               + "; fix them before sweeping", where=Where(model.source))

@@ -140,6 +140,10 @@ def analyze_mismatch(design: Design, mismatched: list[str], *, exact: bool = Tru
     model = design.model
     if design.feedback is None:
         raise DesignError("mismatch analysis needs a [feedback] design", where=Where(model.source))
+    if design.feedback.definitions:
+        raise DesignError("the feedback gain is in compact form (a large plant): the closed-form "
+                          "Routh-Hurwitz analysis needs expanded gains and is not affordable here",
+                          where=Where(model.source))
     if not mismatched:
         raise ModelError("name at least one parameter to mismatch")
     taken = {p.name for p in model.parameters} | {"s"}

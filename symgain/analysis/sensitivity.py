@@ -42,17 +42,58 @@ def _tidy(expr: sp.Expr) -> sp.Expr:
     return sp.factor(sp.cancel(expr))
 
 
-def sensitivity_table(design: Design) -> dict[str, dict[tuple[int, int, str], sp.Expr]]:
-    """part -> {(row, col, parameter name): dK[row, col]/dparameter} (zero entries included)."""
+def _flint_derivatives(part, parameters) -> dict | None:
+    """dK/dp from the numerator and denominator of each gain in FLINT; None when an atom
+    such as sqrt(k/m) depends on a parameter (then the caller differentiates with sympy)."""
+    from ..design.algebra import Field, Fraction
+
+    symbols = [p.symbol for p in parameters]
+    field = Field.for_exprs(list(part.gain), extra=symbols)
+    if any(not a.is_Symbol and a.free_symbols & set(symbols) for a in field.atoms):
+        return None
     out = {}
-    for part in design.parts():
-        entries = {}
-        for p in design.model.parameters:
-            for i in range(part.gain.rows):
-                for j in range(part.gain.cols):
-                    entries[(i, j, p.name)] = _tidy(sp.diff(part.gain[i, j], p.symbol))
-        out[part.part] = entries
+    for i in range(part.gain.rows):
+        for j in range(part.gain.cols):
+            value = field.element(part.gain[i, j])
+            for p in parameters:
+                k = field.atoms.index(p.symbol)
+                num = value.num.derivative(k) * value.den - value.num * value.den.derivative(k)
+                d = Fraction(num, value.den * value.den) if not num.is_zero() else field.zero
+                out[(i, j, p.name)] = field.factored(d) if d else sp.Integer(0)
     return out
+
+
+def sensitivity_table(design: Design, with_definitions: bool = False):
+    """part -> {(row, col, parameter name): dK[row, col]/dparameter} (zero entries included).
+
+    Expanded gains are differentiated exactly in FLINT (numerator and denominator);
+    a compact form by forward differentiation along its definitions
+    (:func:`symgain.design.compact.forward_derivatives`), which adds definitions
+    ``d_<name>_<parameter>``. With ``with_definitions`` the result is
+    ``(table, {part: added definitions})``.
+    """
+    from ..design.compact import forward_derivatives
+
+    out, added = {}, {}
+    params = design.model.parameters
+    for part in design.parts():
+        if part.definitions:
+            entries, new = {}, []
+            avoid = {str(s) for s in design.model.symbols.values()}
+            for p in params:
+                defs, derivs = forward_derivatives(part.definitions, list(part.gain), p.symbol, avoid)
+                new.extend(defs)
+                avoid |= {str(s) for s, _ in defs}
+                for k, d in enumerate(derivs):
+                    entries[(k // part.gain.cols, k % part.gain.cols, p.name)] = d
+            out[part.part], added[part.part] = entries, tuple(new)
+            continue
+        entries = _flint_derivatives(part, params)
+        if entries is None:
+            entries = {(i, j, p.name): _tidy(sp.diff(part.gain[i, j], p.symbol))
+                       for p in params for i in range(part.gain.rows) for j in range(part.gain.cols)}
+        out[part.part], added[part.part] = entries, ()
+    return (out, added) if with_definitions else out
 
 
 def sensitivity_matrices(design: Design) -> dict[str, dict[str, sp.Matrix]]:
@@ -69,11 +110,25 @@ def sensitivity_matrices(design: Design) -> dict[str, dict[str, sp.Matrix]]:
 def relative_sensitivities(design: Design, values: dict[str, float] | None = None,
                            table=None) -> dict[str, dict[tuple[int, int, str], float]]:
     """(p / K) dK/dp at ``values`` (nominal by default); NaN where the gain is zero."""
+    from ..design.compact import numeric_function
+
     values = values or design.model.nominal_values()
     subs = {p.symbol: values[p.name] for p in design.model.parameters}
-    table = table or sensitivity_table(design)
+    if table is None or any(p.definitions for p in design.parts()):
+        table, added = sensitivity_table(design, with_definitions=True)
     out = {}
     for part in design.parts():
+        if part.definitions:  # compact form: evaluate the definitions in order, numerically
+            keys = list(table[part.part])
+            args = [p.symbol for p in design.model.parameters]
+            f = numeric_function(args, [*part.gain, *[table[part.part][k] for k in keys]],
+                                 (*part.definitions, *added[part.part]), modules="math")
+            numbers = f(*[subs[a] for a in args])
+            gains, derivs = numbers[:len(part.gain)], numbers[len(part.gain):]
+            out[part.part] = {(i, j, name): float(values[name] * d / gains[i * part.gain.cols + j])
+                              if gains[i * part.gain.cols + j] != 0 else float("nan")
+                              for (i, j, name), d in zip(keys, derivs)}
+            continue
         rel = {}
         for (i, j, name), deriv in table[part.part].items():
             k = complex(sp.sympify(part.gain[i, j].xreplace(subs)).evalf()).real

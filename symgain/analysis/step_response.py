@@ -29,6 +29,7 @@ import scipy.signal
 import sympy as sp
 
 from ..design import Design
+from ..design.compact import numeric_function
 from ..errors import DesignError, Where
 
 __all__ = ["StepRun", "step_responses", "corner_points"]
@@ -73,7 +74,7 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
     f_A, f_B = sp.lambdify(args, model.A, "numpy"), sp.lambdify(args, model.B, "numpy")
     C = model.C if model.C is not None else sp.Matrix([[1] + [0] * (model.n_states - 1)])
     f_C = sp.lambdify(args, C[0, :], "numpy")
-    f_K = sp.lambdify(args, design.feedback.gain, "numpy")
+    f_K = numeric_function(args, design.feedback.gain, design.feedback.definitions)
 
     def numeric(point):
         vals = [point[n] for n in names]

@@ -6,14 +6,21 @@ import sys
 import time
 from importlib import resources
 
-from ..analysis.check import DEFAULT_TOLERANCE, check_design
-from ..design import derive
-from ..errors import ClosedFormLimitation
-from ..emit.json import design_to_json
-from ..model.toml_file import load_model, model_from_text
-from ..emit.terminal import format_check, format_design
+# sympy, scipy and the design stage are imported inside the commands (fast --help)
+
+DEFAULT_TOLERANCE = 1e-6  # the same as symgain.analysis.check.DEFAULT_TOLERANCE (a test keeps them equal)
 
 _FMT = argparse.RawDescriptionHelpFormatter
+
+
+FORMS = ("auto", "expanded", "compact")  # symgain.design.single_input.FORMS (a test keeps them equal)
+
+
+def add_form_option(p) -> None:
+    """The --form option shared by derive, check and emit."""
+    p.add_argument("--form", choices=FORMS, default="auto",
+                   help="how gains are written: expanded (one formula each), compact (a sequence of named "
+                   "definitions, for large plants) or auto (default: expanded unless it would be large)")
 
 
 def _add_check_options(p):
@@ -31,6 +38,10 @@ def add_to(sub) -> None:
                        epilog="example:\n  symgain derive examples/greenhouse_cart.toml --json")
     p.add_argument("model", help="model file (TOML)")
     p.add_argument("--json", action="store_true", help="print the machine-readable JSON result")
+    add_form_option(p)
+    p.add_argument("--sensitivity", action="store_true",
+                   help="with --json: include the partial derivatives dK/dp also for gains in compact "
+                   "form (expanded gains always carry them)")
     p.set_defaults(run=run_derive)
 
     p = sub.add_parser("check", help="cross-check the formulas numerically against scipy",
@@ -40,6 +51,7 @@ def add_to(sub) -> None:
                        epilog="example:\n  symgain check examples/greenhouse_cart.toml --points 50")
     p.add_argument("model", help="model file (TOML)")
     _add_check_options(p)
+    add_form_option(p)
     p.set_defaults(run=run_check)
 
     p = sub.add_parser("demo", help="derive and check the built-in example", formatter_class=_FMT,
@@ -49,12 +61,20 @@ def add_to(sub) -> None:
 
 
 def run_derive(args) -> int:
-    design = derive(load_model(args.model))
-    print(design_to_json(design) if args.json else format_design(design), end="" if not args.json else "\n")
+    from ..design import derive
+    from ..emit.json import design_to_json
+    from ..emit.terminal import format_design
+    from ..model.toml_file import load_model
+
+    design = derive(load_model(args.model), form=args.form)
+    print(design_to_json(design, sensitivity=True if args.sensitivity else None) if args.json else format_design(design), end="" if not args.json else "\n")
     return 0
 
 
 def _print_check(design, args) -> int:
+    from ..analysis.check import check_design
+    from ..emit.terminal import format_check
+
     report = check_design(design, n_points=args.points, seed=args.seed, tolerance=args.tolerance)
     print(format_check(report, [p.name for p in design.model.parameters]), end="")
     print("check passed" if report.passed else "check FAILED")
@@ -62,9 +82,13 @@ def _print_check(design, args) -> int:
 
 
 def run_check(args) -> int:
+    from ..design import derive
+    from ..errors import ClosedFormLimitation
+    from ..model.toml_file import load_model
+
     model = load_model(args.model)
     try:
-        design = derive(model)
+        design = derive(model, form=args.form)
     except ClosedFormLimitation as exc:  # no closed form: check numerically where a pattern allows it
         return _check_numerically(model, exc, args)
     return _print_check(design, args)
@@ -102,6 +126,10 @@ DEMO_FILE = "demo_conveyor.toml"
 
 
 def run_demo(args) -> int:
+    from ..design import derive
+    from ..emit.terminal import format_design
+    from ..model.toml_file import model_from_text
+
     text = resources.files("symgain.data").joinpath(DEMO_FILE).read_text(encoding="utf-8")
     start = time.perf_counter()
     model = model_from_text(text, f"<built-in {DEMO_FILE}>")

@@ -3,9 +3,8 @@ from __future__ import annotations
 
 import argparse
 
-from ..design import derive
-from ..emit import TARGETS, emit
-from ..model.toml_file import load_model
+from ..emit import TARGETS  # light: the emitters themselves load on use
+from .core import add_form_option
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
@@ -30,11 +29,16 @@ def add_to(sub) -> None:
                    help="file name, Python module and C prefix (default: the model's name)")
     p.add_argument("--precision", choices=("double", "single"), default="double",
                    help="C floating-point type: double (default) or single (float)")
+    add_form_option(p)
     p.set_defaults(run=run_emit)
 
 
 def run_emit(args) -> int:
-    design = derive(load_model(args.model))
+    from ..design import derive
+    from ..emit import emit
+    from ..model.toml_file import load_model
+
+    design = derive(load_model(args.model), form=args.form)
     for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
         print(path)
     return 0

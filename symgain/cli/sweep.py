@@ -5,12 +5,9 @@ import argparse
 import sys
 from contextlib import contextmanager
 
-import numpy as np
-import sympy as sp
-
-from ..design import derive
 from ..errors import ModelError
-from ..model.toml_file import load_model
+
+# numpy, sympy and the design stage load inside the commands (fast --help)
 
 _FMT = argparse.RawDescriptionHelpFormatter
 
@@ -91,6 +88,11 @@ def _folder(args, model):
 
 
 def run_schedule(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, schedule_figure
     from ..analysis.evaluate import GainEvaluator
     from ..emit.lookup_c import interpolation_errors, lookup_table_c, REFINE
@@ -130,10 +132,17 @@ def run_schedule(args) -> int:
 
 
 def _interval_text(lo: float, hi: float) -> str:
+    import numpy as np
+
     return f"({lo:.6g}, {'inf' if not np.isfinite(hi) else f'{hi:.6g}'})"
 
 
 def run_robust(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, pole_migration_figure
     from ..analysis.robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
     from ..emit.files import write_atomic
@@ -190,6 +199,11 @@ def run_robust(args) -> int:
 
 
 def run_sensitivity(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..analysis.sensitivity import relative_sensitivities, sensitivity_table
     from ..analysis.evaluate import gain_entries
 
@@ -201,7 +215,7 @@ def run_sensitivity(args) -> int:
 
         raise DesignError("gains still contain free symbols " + ", ".join(free) + "; fix them in the pattern "
                           "before a sensitivity table", where=Where(model.source))
-    table = sensitivity_table(design)
+    table, added = sensitivity_table(design, with_definitions=True)
     rel = relative_sensitivities(design, table=table)
     names = [p.name for p in model.parameters]
     print(f"{model.name}: relative sensitivity (p/K) dK/dp at nominal "
@@ -215,6 +229,11 @@ def run_sensitivity(args) -> int:
     print("(+1.000: the gain grows in proportion to the parameter; nan: the gain is zero there)")
     if args.formulas:
         print("partial derivatives in closed form:")
+        for part in design.parts():
+            if part.definitions:
+                print(f"  {part.part} gain in compact form; definitions, evaluated in order:")
+                for sym, expr in (*part.definitions, *added[part.part]):
+                    print(f"    {sp.sstr(sym)} = {sp.sstr(expr)}")
         for e in entries:
             for n in names:
                 d = table[e.part][(e.row, e.col, n)]
@@ -224,6 +243,11 @@ def run_sensitivity(args) -> int:
 
 
 def run_plot(args) -> int:
+    import numpy as np
+    import sympy as sp
+
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, step_figure
     from ..emit.files import write_atomic
     from ..analysis.step_response import corner_points, step_responses

@@ -5,6 +5,7 @@
 | ``algebra`` | exact fraction field of the parameters (FLINT), sparse LU, characteristic polynomial |
 | ``targets``, ``prototypes`` | target forms -> monic polynomial; prototype tables with sources |
 | ``placement`` | single-input coefficient matching and Ackermann's formula |
+| ``compact``, ``compact_design`` | the compact form for large plants: named definitions in order |
 | ``validity`` | nonzero conditions from factors and sign assumptions |
 | ``result`` | ``Step``, ``GainDesign``, ``Design`` (what every consumer reads) |
 | ``single_input`` | ``design_gain``: the one placement entry every part uses |

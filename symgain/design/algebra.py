@@ -30,7 +30,18 @@ import sympy as sp
 from sympy.polys.domains import QQ
 from sympy.polys.rings import PolyRing
 
-__all__ = ["Field", "Fraction", "rational_atoms", "charpoly", "matvec", "SparseLU"]
+__all__ = ["Field", "Fraction", "rational_atoms", "charpoly", "matvec", "SparseLU", "TooLarge"]
+
+
+class TooLarge(ArithmeticError):
+    """An intermediate result grew beyond the allowed number of terms (see ``limit``)."""
+
+
+def check_size(element: "Fraction", limit: int | None) -> "Fraction":
+    """The element itself; :class:`TooLarge` when it has more than ``limit`` terms."""
+    if limit is not None and element.size() > limit:
+        raise TooLarge(f"an intermediate result has {element.size()} terms (limit {limit})")
+    return element
 
 
 def rational_atoms(exprs: Iterable[sp.Expr]) -> list[sp.Expr]:
@@ -172,7 +183,7 @@ class Field:
         """Convert a rational expression in the atoms into a field element."""
         gens = self._stand_ins
         expr = sp.sympify(expr).xreplace({a: g for a, g in zip(self.atoms, gens) if a is not g})
-        num, den = sp.fraction(sp.cancel(sp.together(expr)))
+        num, den = sp.fraction(sp.together(expr))  # FLINT cancels the common factors
         return Fraction(self._poly(sp.expand(num), gens), self._poly(sp.expand(den), gens))
 
     def poly_to_expr(self, poly) -> sp.Expr:
@@ -270,7 +281,8 @@ class SparseLU:
     det: Fraction
 
     @classmethod
-    def factor(cls, matrix: list[list[Fraction]], field: Field) -> "SparseLU":
+    def factor(cls, matrix: list[list[Fraction]], field: Field, limit: int | None = None) -> "SparseLU":
+        """Eliminate; :class:`TooLarge` when an entry exceeds ``limit`` terms (no limit: None)."""
         n = len(matrix)
         rows = {i: {j: v for j, v in enumerate(r) if v} for i, r in enumerate(matrix)}
         active_rows, active_cols = set(range(n)), set(range(n))
@@ -304,7 +316,7 @@ class SparseLU:
                 for j, v in rows[pi].items():
                     if j not in active_cols:
                         continue
-                    new = target.get(j, field.zero) - f * v
+                    new = check_size(target.get(j, field.zero) - f * v, limit)
                     if new:
                         target[j] = new
                     else:
@@ -314,22 +326,22 @@ class SparseLU:
             active_cols.discard(pj)
         return cls(field, n, steps, rows, det if _permutation_sign(steps, n) > 0 else -det)
 
-    def solve(self, rhs: list[Fraction]) -> list[Fraction]:
-        """x with matrix * x = rhs (rhs and x as lists of field elements)."""
+    def solve(self, rhs: list[Fraction], limit: int | None = None) -> list[Fraction]:
+        """x with matrix * x = rhs (rhs and x as lists of field elements); ``limit`` as in factor."""
         if not self.det:
             raise ZeroDivisionError("singular matrix")
         b = list(rhs)
         for pi, _, _, factors in self.steps:
             for i, f in factors.items():
                 if b[pi]:
-                    b[i] = b[i] - f * b[pi]
+                    b[i] = check_size(b[i] - f * b[pi], limit)
         x = [self.field.zero] * self.n
         for pi, pj, pivot, _ in reversed(self.steps):
             acc = b[pi]
             for j, v in self.rows[pi].items():
                 if j != pj and x[j]:
                     acc = acc - v * x[j]
-            x[pj] = acc / pivot
+            x[pj] = check_size(acc / pivot, limit)
         return x
 
 

@@ -104,7 +104,8 @@ def design_blocks(A, B, spec: TargetSpec, target, blocks, *, part, symbol, state
         sub = TargetSpec("polynomial", {"polynomial": share, **sub_values}, spec.where)
         bstates = tuple(states[i] for i in si) if states else None
         if len(ui) == 1:
-            bd = design_gain(Ab, Bb, sub, part=part, symbol=symbol, states=bstates, avoid=avoid, word=word)
+            bd = design_gain(Ab, Bb, sub, part=part, symbol=symbol, states=bstates, avoid=avoid, word=word,
+                             form="expanded")  # the block gain is assembled entry by entry
         else:
             bd = design_several_inputs(Ab, Bb, sub, part=part, symbol=symbol, states=bstates,
                                        inputs=tuple(inputs[u] for u in ui) if inputs else None,

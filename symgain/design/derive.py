@@ -31,9 +31,15 @@ from .single_input import design_gain
 __all__ = ["derive"]
 
 
-def derive(model: Model) -> Design:
-    """Derive every part the model asks for."""
+def derive(model: Model, form: str = "auto") -> Design:
+    """Derive every part the model asks for.
+
+    ``form`` is how single-input gains are written: "auto" (expanded formulas unless they
+    would be large, then the compact form), "expanded" or "compact" (named definitions in
+    order, see :mod:`symgain.design.compact`).
+    """
     avoid = set(model.symbols)
+    nominal = {p.symbol: p.nominal for p in model.parameters if p.nominal is not None}
     feedback = estimator = integral = feedforward = None
     if model.feedback is not None:
         spec = model.feedback
@@ -41,15 +47,18 @@ def derive(model: Model) -> Design:
             spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
         if model.n_inputs == 1 and "pattern" not in spec.values:
             feedback = design_gain(model.A, model.B, spec, part="feedback", symbol="K",
-                                   states=model.states, avoid=avoid)
+                                   states=model.states, avoid=avoid, form=form, nominal=nominal)
         else:
             feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
                                              states=model.states, inputs=model.inputs, avoid=avoid,
                                              symbols=model.symbols)
+    if feedback is not None:  # names of a compact form stay distinct across parts
+        avoid |= {str(sym) for sym, _ in feedback.definitions}
     if model.estimator is not None:
-        estimator = design_estimator(model, avoid, feedback)
+        estimator = design_estimator(model, avoid, feedback, form=form, nominal=nominal)
+        avoid |= {str(sym) for sym, _ in estimator.definitions}
     if model.integral is not None:
-        integral = design_integral(model, avoid)
+        integral = design_integral(model, avoid, form=form, nominal=nominal)
     if model.feedforward:
         feedforward = design_feedforward(model, feedback, integral)
     return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,

@@ -43,7 +43,8 @@ SEPARATION_NOTE = ("separation property: with u = -K x_hat the closed loop of pl
 SEPARATION_TITLE = "separation property: closed-loop polynomial det(sI - A + B K) det(sI - A + L C)"
 
 
-def design_estimator(model: Model, avoid: set[str], feedback=None):
+def design_estimator(model: Model, avoid: set[str], feedback=None, form: str = "auto",
+                     nominal: dict | None = None):
     """The estimator part of a design (GainDesign with symbol L, rows states, columns outputs)."""
     spec = model.estimator
     if model.C is None or model.n_outputs == 0:
@@ -52,7 +53,7 @@ def design_estimator(model: Model, avoid: set[str], feedback=None):
     A, C = sp.Matrix(model.A), sp.Matrix(model.C)
     n, p = A.rows, C.rows
     if p == 1:
-        dual = design_gain(A.T, C.T, spec, part="estimator", symbol="L", states=model.states, avoid=avoid,
+        dual = design_gain(A.T, C.T, spec, part="estimator", symbol="L", states=model.states, avoid=avoid, form=form, nominal=nominal,
                            word="observable")
     else:
         dual = design_several_inputs(A.T, C.T, spec, part="estimator", symbol="L", states=model.states,

@@ -100,4 +100,5 @@ def design_feedforward(model: Model, feedback, integral=None):
     notes = ("control law u = -K x + N r; unit steady-state gain from r to y only while the model is exact "
              "(integral action removes the error under model mismatch)",)
     return GainDesign(part="feedforward", symbol="N", gain=sp.ImmutableMatrix(N), valid_when=valid,
-                      target=None, steps=steps, free_gains=tuple(feedback.free_gains), notes=notes)
+                      target=None, steps=steps, free_gains=tuple(feedback.free_gains), notes=notes,
+                      definitions=feedback.definitions, form=feedback.form)  # N is written in K's symbols

@@ -72,7 +72,7 @@ def _generic_rank(M: sp.Matrix) -> int:
     return best
 
 
-def design_integral(model: Model, avoid: set[str]):
+def design_integral(model: Model, avoid: set[str], form: str = "auto", nominal: dict | None = None):
     """The integral part: gain = K (inputs x states), extra["integral_gain"] = Ki (inputs x outputs)."""
     spec = model.integral
     if model.C is None or model.n_outputs == 0:
@@ -101,7 +101,7 @@ def design_integral(model: Model, avoid: set[str]):
     Aa, Ba = augmented_plant(A, B, C, D)
     states = (*model.states, *(f"q_{y}" for y in model.outputs))
     if m == 1:
-        full = design_gain(Aa, Ba, spec, part="integral", symbol="K", states=states, avoid=avoid)
+        full = design_gain(Aa, Ba, spec, part="integral", symbol="K", states=states, avoid=avoid, form=form, nominal=nominal)
     else:
         full = design_several_inputs(Aa, Ba, spec, part="integral", symbol="K", states=states,
                                      inputs=model.inputs, avoid=avoid, symbols=model.symbols,

@@ -27,7 +27,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import sympy as sp
-from .algebra import Field, SparseLU, charpoly, matvec
+from .algebra import Field, SparseLU, charpoly, check_size, matvec
 from ..model import S
 
 __all__ = ["SingleInputPlacement", "place_single_input", "ackermann", "controllability_matrix",
@@ -99,31 +99,38 @@ def _tidy(field: Field, element) -> tuple[sp.Expr, sp.Expr]:
 
 
 def place_single_input(A: sp.Matrix, B: sp.Matrix, target: sp.Expr, *,
-                       letter: str = "k", avoid: set[str] = frozenset()) -> SingleInputPlacement:
-    """Gains K (1 x n) so that det(sI - A + B K) equals the monic ``target`` in s."""
+                       letter: str = "k", avoid: set[str] = frozenset(),
+                       limit: int | None = None) -> SingleInputPlacement:
+    """Gains K (1 x n) so that det(sI - A + B K) equals the monic ``target`` in s.
+
+    With ``limit``, :class:`~symgain.design.algebra.TooLarge` is raised as soon as a gain
+    exceeds that many terms, or an intermediate result 20 times as many (the open-loop
+    coefficients' products grow before they cancel), before any sympy conversion.
+    """
+    inner = None if limit is None else 20 * limit
     n = A.rows
     alpha = _poly_coeffs(target, n)
     field = Field.for_exprs([*A, *B, *alpha])
     Ad, b = field.matrix(A), [row[0] for row in field.matrix(B)]
-    a = charpoly(Ad, field)[1:]  # a_1 .. a_n
+    a = [check_size(x, inner) for x in charpoly(Ad, field)[1:]]  # a_1 .. a_n
     cols = controllability_matrix(Ad, b, field)
     mcols = []
     for i in range(n):  # column i of M: sum_j a_j A^(i-j) b, a_0 = 1
         col = cols[i]
         for j in range(1, i + 1):
-            col = [x + y * a[j - 1] for x, y in zip(col, cols[i - j])]
+            col = [check_size(x + y * a[j - 1], inner) for x, y in zip(col, cols[i - j])]
         mcols.append(col)
     # K M = alpha - a with M = Ctrb T:  Ctrb^T K^T = T^-T (alpha - a)^T, T unit triangular
     r = [field.element(x) - a[i] for i, x in enumerate(alpha)]
     for i in range(n):  # forward substitution with T^T (lower unit triangular, T^T[i][j] = a_(i-j))
         for j in range(i):
-            r[i] = r[i] - a[i - j - 1] * r[j]
-    lu = SparseLU.factor(cols, field)  # rows of Ctrb^T are the columns of Ctrb
+            r[i] = check_size(r[i] - a[i - j - 1] * r[j], inner)
+    lu = SparseLU.factor(cols, field, inner)  # rows of Ctrb^T are the columns of Ctrb
     gsyms = gain_symbols(letter, (1, n), avoid)
     if not lu.det:
         gain, dens = sp.Matrix(1, n, [sp.nan] * n), ()
     else:
-        tidy = [_tidy(field, x) for x in lu.solve(r)]
+        tidy = [_tidy(field, check_size(x, limit)) for x in lu.solve(r, inner)]
         gain = sp.Matrix(1, n, [t[0] for t in tidy])
         dens = tuple(t[1] for t in tidy)
     return SingleInputPlacement(

@@ -60,6 +60,9 @@ class GainDesign:
     extra: dict = field(default_factory=dict)  # more matrices of the part, e.g. integral_gain
     branches: tuple[Branch, ...] = ()  # every solution branch when there are several (gain = the selected one)
     selected_branch: int | None = None  # the branch the model selects (key branch), None: all are emitted
+    # compact form: named intermediate quantities, in order; the gain is written in their symbols
+    definitions: tuple[tuple[sp.Symbol, sp.Expr], ...] = ()
+    form: str = "expanded"  # "expanded" or "compact"
 
     def step(self, name: str) -> Step:
         for st in self.steps:

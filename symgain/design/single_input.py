@@ -15,12 +15,20 @@ import sympy as sp
 
 from ..errors import DesignError, NotControllableError
 from ..model import S, TargetSpec
+from .algebra import TooLarge
 from .placement import place_single_input
 from .result import GainDesign, Step
 from .targets import resolve_target
 from .validity import nonzero_conditions
 
-__all__ = ["design_gain"]
+__all__ = ["design_gain", "FORMS", "EXPANDED_LIMIT"]
+
+FORMS = ("auto", "expanded", "compact")
+# "auto" gives the compact form when an entry of the expanded derivation (open-loop
+# coefficients, elimination, gains) would exceed this many terms (numerator plus
+# denominator). The examples stay far below (at most 18 terms); a chain of four
+# carriages (8 states) goes above (about 1600 terms per gain).
+EXPANDED_LIMIT = 400
 
 
 def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no input moves") -> str:
@@ -39,14 +47,34 @@ def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no 
 
 
 def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symbol: str,
-                states, avoid: set[str], word: str = "controllable") -> GainDesign:
-    """Single-input placement for A - B K against the target in ``spec``."""
+                states, avoid: set[str], word: str = "controllable", form: str = "auto",
+                nominal: dict | None = None) -> GainDesign:
+    """Single-input placement for A - B K against the target in ``spec``.
+
+    ``form``: "expanded" (each gain one formula), "compact" (a sequence of named
+    definitions, :mod:`symgain.design.compact`) or "auto" (expanded unless it would be large).
+    ``nominal`` (symbol -> number): the compact form picks pivots that do not vanish there.
+    """
     n = A.rows
     if B.cols != 1:
         raise DesignError(f"{part}: {B.cols} inputs; several inputs need a 'pattern' "
                           "(see the model-file reference)", where=spec.where)
+    if form not in FORMS:
+        raise DesignError(f"form must be one of {', '.join(FORMS)}, found {form!r}", where=spec.where)
     target = resolve_target(spec, n)
-    result = place_single_input(A, B, target.polynomial, letter=symbol.lower(), avoid=avoid)
+    result = None
+    if form != "compact":
+        try:
+            result = place_single_input(A, B, target.polynomial, letter=symbol.lower(), avoid=avoid,
+                                        limit=EXPANDED_LIMIT if form == "auto" else None)
+        except TooLarge:
+            result = None
+    if result is None:
+        from .compact_design import compact_design
+
+        return compact_design(A, B, target, part=part, symbol=symbol, states=states, avoid=avoid,
+                              word=word, chosen_over=EXPANDED_LIMIT if form == "auto" else None,
+                              unreachable=_unreachable_directions, where=spec.where, nominal=nominal)
     det_num, det_den = result.controllability_det
     if det_num == 0:
         raise NotControllableError(
@@ -70,4 +98,4 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
     )
     return GainDesign(part=part, symbol=symbol, gain=sp.ImmutableMatrix(result.gain), valid_when=valid,
                       target=target, closed_loop_polynomial=result.closed_loop_polynomial, steps=steps,
-                      notes=target.notes, extra={"gain_symbols": Ksym})
+                      notes=target.notes, extra={"gain_symbols": Ksym}, form="expanded")

@@ -18,9 +18,12 @@ from __future__ import annotations
 
 import re
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from ..design import Design
 from ..errors import OutputError
+
+if TYPE_CHECKING:  # the design stage (sympy) loads only when something is rendered
+    from ..design import Design
 
 __all__ = ["emit", "render", "TARGETS"]
 

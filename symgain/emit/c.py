@@ -96,6 +96,11 @@ def _comment(fn: Function, names: dict[str, str]) -> list[str]:
         shown = names[name] + (f" (model name {name}, mangled)" if names[name] != name else "")
         lines.append(f" * {shown}: {meaning or 'no meaning given'}"
                      + (f" [{unit}]" if unit else "") + f", range {_range(rng)}")
+    if fn.definitions:
+        lines.append(" *")
+        lines.append(f" * compact form: {len(fn.definitions)} named intermediate quantities (controllability")
+        lines.append(" * columns, a fixed-pivot elimination, Ackermann's formula by Horner's rule), computed")
+        lines.append(" * in order; each pivot is tested before it divides anything.")
     lines.append(" *")
     lines.append(" * returns 0 on success;")
     for k, cond in enumerate(fn.conditions, start=1):
@@ -111,39 +116,50 @@ def _comment(fn: Function, names: dict[str, str]) -> list[str]:
 
 
 def _renamed(fn: Function, names):
-    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)])
+    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)],
+                                           *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     return ([e.xreplace(rename) for e in fn.matrix], [c.xreplace(rename) for c in fn.conditions],
-            [c.xreplace(rename) for c in fn.nonnegative])
+            [(sym, e.xreplace(rename)) for sym, e in fn.definitions], [c.xreplace(rename) for c in fn.nonnegative])
 
 
 def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: bool = True) -> list[str]:
-    entries, conditions, nonnegative = _renamed(fn, names)
-    avoid = set(names.values()) | {fn.label}
+    entries, conditions, definitions, nonnegative = _renamed(fn, names)
+    avoid = set(names.values()) | {fn.label} | {str(sym) for sym, _ in definitions}
     lines = []
-    used = {str(s) for e in [*entries, *conditions, *nonnegative] for s in e.free_symbols}
+    used = {str(s) for e in [*entries, *conditions, *nonnegative, *(d for _, d in definitions)]
+            for s in e.free_symbols}
     for a in fn.arguments:
         if names[a] not in used:
             lines.append(f"    (void){names[a]};  /* not needed by these formulas */")
     fabs = "fabsf" if ctype == "float" else "fabs"
     one = "1.0f" if ctype == "float" else "1.0"
-    for k, cond in enumerate(conditions, start=1):
+    lit = f"{tol!r}f" if ctype == "float" else repr(tol)
+    checks = fn.checked_after()
+
+    def test(indexes):
+        for index in indexes:
+            (value,), terms = failure_rule(conditions[index], definitions)
+            scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"{fabs}({printer.doprint(t)})"
+                               for t in terms)
+            lines.append(f"    if ({fabs}({printer.doprint(value)}) <= {lit} * ({one} + {scale})) {{")
+            lines.append(f"        return {index + 1};")
+            lines.append("    }")
+
+    test(checks.get(-1, ()))
+    for k, (sym, expr) in enumerate(definitions):  # compact form: named quantities, in order
+        lines.append(f"    const {ctype} {sym} = {printer.doprint(expr)};")
+        test(checks.get(k, ()))
+    for k, cond in enumerate(nonnegative, start=len(conditions) + 1):  # a solution branch is real where f >= 0
         (value,), terms = failure_rule(cond)
         scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"{fabs}({printer.doprint(t)})"
                            for t in terms)
-        lit = f"{tol!r}f" if ctype == "float" else repr(tol)
-        lines.append(f"    if ({fabs}({printer.doprint(value)}) <= {lit} * ({one} + {scale})) {{")
-        lines.append(f"        return {k};")
-        lines.append("    }")
-    for k, cond in enumerate(nonnegative, start=len(conditions) + 1):
-        (value,), terms = failure_rule(cond)
-        scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"{fabs}({printer.doprint(t)})"
-                           for t in terms)
-        lit = f"{tol!r}f" if ctype == "float" else repr(tol)
         lines.append(f"    if ({printer.doprint(value)} < -{lit} * ({one} + {scale})) {{")
         lines.append(f"        return {k};")
         lines.append("    }")
-    if cse:
+    if definitions:  # the definitions already share what there is to share
+        replacements, reduced = [], entries
+    elif cse:
         replacements, reduced = shared_subexpressions(entries, avoid)
     else:
         replacements, reduced = [], entries
@@ -158,9 +174,16 @@ def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: b
 
 
 def c_operation_counts(design: Design) -> dict[str, tuple[int, int]]:
-    """Arithmetic operations (sympy ``count_ops``) per function: ``(without CSE, with CSE)``."""
+    """Arithmetic operations (sympy ``count_ops``) per function: ``(without CSE, with CSE)``.
+
+    For the compact form both are the operations of the definitions and the gains.
+    """
     out = {}
     for fn in design_functions(design):
+        if fn.definitions:  # compact form: the definitions are the program; no CSE on top
+            ops = sum(sp.count_ops(e) for _, e in fn.definitions) + sum(sp.count_ops(e) for e in fn.matrix)
+            out[fn.name] = (int(ops), int(ops))
+            continue
         plain = sum(sp.count_ops(e) for e in fn.matrix)
         replacements, reduced = shared_subexpressions(list(fn.matrix), set(fn.arguments))
         shared = sum(sp.count_ops(e) for _, e in replacements) + sum(sp.count_ops(e) for e in reduced)

@@ -53,8 +53,22 @@ class Function:
     arguments: tuple[str, ...]  # parameter names (declaration order), then free gains
     conditions: tuple[sp.Expr, ...]  # f of each Ne(f, 0), in the order of part.valid_when
     meanings: tuple[tuple[str, str, str, tuple | None], ...]  # (name, meaning, unit, range)
+    definitions: tuple[tuple[sp.Symbol, sp.Expr], ...] = ()  # compact form: computed first, in order
     nonnegative: tuple[sp.Expr, ...] = ()  # f of each f >= 0 (a solution branch is real there)
     branch: int | None = None  # the solution branch this function holds (several-input designs)
+
+    def checked_after(self) -> dict[int, list[int]]:
+        """Definition index -> indexes of the conditions to test right after it (compact form).
+
+        A condition on a pivot is tested as soon as the pivot is known, before any
+        division by it; conditions that need no definition have the key -1.
+        """
+        position = {sym: k for k, (sym, _) in enumerate(self.definitions)}
+        out: dict[int, list[int]] = {}
+        for index, cond in enumerate(self.conditions):
+            last = max((position[s] for s in cond.free_symbols if s in position), default=-1)
+            out.setdefault(last, []).append(index)
+        return out
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -92,34 +106,48 @@ def design_functions(design: Design) -> list[Function]:
                 continue
             name = key if key not in taken and key != f"{part.part}_gain" else f"{part.part}_{key}"
             matrices.append((key, name, key, value))
+        defined = {sym for sym, _ in part.definitions}
+        in_definitions = {s for _, e in part.definitions for s in e.free_symbols}
         shown = part.selected_branch or (1 if part.branches else None)
-        entries = [(key, name, label, matrix, part.valid_when, shown) for key, name, label, matrix in matrices]
+        entries = [(key, name, label, matrix, part.valid_when, shown, tuple(part.definitions))
+                   for key, name, label, matrix in matrices]
         if part.branches and part.selected_branch is None:  # every other branch is emitted too
             for b in part.branches:
                 if b.index == shown:
                     continue
                 entries.append(("gain", f"{part.part}_gain_branch_{b.index}", part.symbol, b.gain,
-                                b.valid_when, b.index))
+                                b.valid_when, b.index, ()))
                 for key, value in b.extra.items():
                     name = f"{key}_branch_{b.index}"
                     entries.append((key, name if name not in taken else f"{part.part}_{name}", key, value,
-                                    b.valid_when, b.index))
-        for key, name, label, matrix, valid, branch in entries:
+                                    b.valid_when, b.index, ()))
+        for key, name, label, matrix, valid, branch, definitions in entries:
             conditions, nonnegative = _split_conditions(valid)
             taken.add(name)
             matrix = sp.ImmutableMatrix(matrix)
+            used = in_definitions if definitions else set()
             free = sorted((s for s in matrix.free_symbols
                            | {s for c in (*conditions, *nonnegative) for s in c.free_symbols}
-                           if s not in declared), key=str)
+                           | used if s not in declared and s not in defined), key=str)
             fm = tuple((str(s), "free gain left undetermined by the target", "", None) for s in free)
             out.append(Function(name, part.part, key, label, matrix, tuple(params) + tuple(map(str, free)),
-                                conditions, meanings + fm, nonnegative, branch))
+                                conditions, meanings + fm, definitions=definitions, nonnegative=nonnegative,
+                                branch=branch))
     return out
 
 
-def failure_rule(expr: sp.Expr) -> tuple[tuple[sp.Expr, ...], tuple[sp.Expr, ...]]:
-    """``((f,), terms)``: the value and the terms whose sizes scale the zero test."""
-    return (expr,), sp.Add.make_args(expr)
+def failure_rule(expr: sp.Expr, definitions=()) -> tuple[tuple[sp.Expr, ...], tuple[sp.Expr, ...]]:
+    """``((f,), terms)``: the value and the terms whose sizes scale the zero test.
+
+    For a named quantity of the compact form the terms are those of its definition
+    (the pivot ``u = a - b`` is a round-off zero when ``|u| <= tol (1 + |a| + |b|)``).
+
+    >>> u, a, b = sp.symbols("u a b")
+    >>> failure_rule(u, [(u, a - b)])
+    ((u,), (a, -b))
+    """
+    definition = dict(definitions).get(expr)
+    return (expr,), sp.Add.make_args(definition if definition is not None else expr)
 
 
 def shared_subexpressions(exprs, avoid, prefix: str = "t"):

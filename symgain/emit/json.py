@@ -11,6 +11,12 @@
 [['m', '2*m']]
 >>> design_to_dict(derive(model))["feedback"]["sensitivity"]  # dK/dm, one matrix per parameter
 {'m': [['1', '2']]}
+>>> design_to_dict(derive(model))["feedback"]["form"]
+'expanded'
+
+A part in compact form adds ``definitions`` (pairs ``[name, formula]`` to evaluate in
+order; the gain is written in these names). Its sensitivities are included only when
+asked (``sensitivity=True``), as ``sensitivity_definitions`` followed by ``sensitivity``.
 """
 from __future__ import annotations
 
@@ -19,7 +25,6 @@ import json
 import sympy as sp
 
 from ..design import Design, GainDesign
-from ..analysis.sensitivity import sensitivity_matrices
 
 __all__ = ["design_to_dict", "design_to_json"]
 
@@ -28,8 +33,14 @@ def _matrix(mat) -> list[list[str]]:
     return [[sp.sstr(e) for e in mat.row(i)] for i in range(mat.rows)]
 
 
-def _part(part: GainDesign, sensitivity: dict | None = None) -> dict:
-    out = {"gain": _matrix(part.gain), "valid_when": [sp.sstr(c) for c in part.valid_when]}
+def _part(part: GainDesign, sensitivity: dict | None = None, added=()) -> dict:
+    out = {"form": part.form}
+    if part.definitions:
+        out["definitions"] = [[str(s), sp.sstr(e)] for s, e in part.definitions]
+        for step in part.steps:  # compact form: det Ctrb, factored, where it was affordable
+            if step.name.endswith("_determinant"):
+                out[step.name] = sp.sstr(step.value)
+    out |= {"gain": _matrix(part.gain), "valid_when": [sp.sstr(c) for c in part.valid_when]}
     for key, value in part.extra.items():
         if key == "gain_symbols":
             continue
@@ -57,13 +68,19 @@ def _part(part: GainDesign, sensitivity: dict | None = None) -> dict:
                             "valid_when": [sp.sstr(c) for c in b.valid_when],
                             "real_when": [sp.sstr(c) for c in b.real_when],
                             **({"note": b.note} if b.note else {})} for b in part.branches]
+    if added:
+        out["sensitivity_definitions"] = [[str(s), sp.sstr(e)] for s, e in added]
     if sensitivity is not None:
         out["sensitivity"] = {name: _matrix(mat) for name, mat in sensitivity.items()}
     return out
 
 
-def design_to_dict(design: Design) -> dict:
-    """The contract's JSON object as Python data (strings that sympy.sympify reads back)."""
+def design_to_dict(design: Design, sensitivity: bool | None = None) -> dict:
+    """The contract's JSON object as Python data (strings that sympy.sympify reads back).
+
+    ``sensitivity``: None includes the partial derivatives of expanded parts only (they
+    are cheap there); True includes them for every part; False for none.
+    """
     model = design.model
     out = {
         "name": model.name,
@@ -77,11 +94,31 @@ def design_to_dict(design: Design) -> dict:
         out["plant_notes"] = list(model.notes)
     if model.extra.get("equilibrium"):
         out["equilibrium"] = {str(k): sp.sstr(v) for k, v in model.extra["equilibrium"].items()}
-    sensitivity = sensitivity_matrices(design)
+    wanted = [p for p in design.parts() if sensitivity or (sensitivity is None and not p.definitions)]
+    matrices, added = _sensitivities(design, wanted) if wanted else ({}, {})
     for part in design.parts():
-        out[part.part] = _part(part, sensitivity.get(part.part))
+        out[part.part] = _part(part, matrices.get(part.part), added.get(part.part, ()))
     return out
 
 
-def design_to_json(design: Design, indent: int = 2) -> str:
-    return json.dumps(design_to_dict(design), indent=indent)
+def _sensitivities(design: Design, parts) -> tuple[dict, dict]:
+    """part -> parameter -> dK/dp matrix, and part -> added definitions (compact form)."""
+    from dataclasses import replace
+
+    from ..analysis.sensitivity import sensitivity_table
+
+    chosen = {p.part: p for p in parts}
+    subset = replace(design, **{name: chosen.get(name) for name in ("feedback", "estimator", "integral",
+                                                                     "feedforward")})
+    table, added = sensitivity_table(subset, with_definitions=True)
+    matrices = {}
+    for part in parts:
+        rows, cols = part.gain.shape
+        matrices[part.part] = {p.name: sp.Matrix(rows, cols, lambda i, j, _n=p.name: table[part.part][(i, j, _n)])
+                               for p in design.model.parameters}
+    return matrices, added
+
+
+def design_to_json(design: Design, indent: int = 2, sensitivity: bool | None = None) -> str:
+    """:func:`design_to_dict` as JSON text."""
+    return json.dumps(design_to_dict(design, sensitivity), indent=indent)

@@ -26,6 +26,8 @@ and tests can read each one back.
 """
 from __future__ import annotations
 
+from dataclasses import replace
+
 import sympy as sp
 
 from ..analysis.check import check_design
@@ -89,7 +91,7 @@ def _matrix_block(name: str, mat, key: str, entry_names=None) -> list[str]:
         for j in range(mat.cols):
             if mat[i, j] == 0:
                 continue
-            lhs = entry_names[i][j] if entry_names else f"{name}_{{{i + 1},{j + 1}}}"
+            lhs = entry_names[i][j] if entry_names else f"{{{name}}}_{{{i + 1},{j + 1}}}"  # braces: A_{cl} has one
             rows.append((f"{key}[{i}][{j}]", formula_lines(lhs, mat[i, j])))
     zeros = "" if all(e != 0 for e in mat) else " (entries not listed are zero)"
     head = [f"${name}$ is {mat.rows}$\\times${mat.cols}; its entries{zeros}:"]
@@ -302,9 +304,14 @@ def latex_report(design: Design, n_points: int = 10, seed: int = 0) -> str:
            "where they hold, and checks them numerically. Symbols in formulas are the parameters "
            "of the table in Section 1; $k_i$ and similar are the unknown gains before the solution."]
     out += _plant(design)
-    sensitivity = sensitivity_table(design)
+    expanded = [p for p in design.parts() if not p.definitions]
+    sensitivity = sensitivity_table(replace(design, **{p.part: None for p in design.parts() if p.definitions}))\
+        if expanded else {}
     for part in design.parts():
-        out += _part(design, part, sensitivity if not part.free_gains else None)
+        out += _part(design, part, sensitivity if not part.free_gains and not part.definitions else None)
+        if part.definitions:
+            out.append("The partial derivatives of a gain in compact form are not listed here; "
+                       r"\texttt{symgain derive --json --sensitivity} writes them as definitions.")
     out += _check(design, n_points, seed)
     out += [r"\section{Safety caution}", text(CAUTION),
             r"\section*{Review}", "Reviewed and accepted by: "

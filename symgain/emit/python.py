@@ -58,6 +58,10 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
     rows, cols = fn.shape
     lines = [f'"""{fn.part.capitalize()} {fn.key.replace("_", " ")} {fn.label} of {model.name}: '
              f"an array of shape (..., {rows}, {cols}).", ""]
+    if fn.definitions:
+        lines.append(f"Definitions, computed in order ({len(fn.definitions)}; compact form):")
+        lines += [f"    {sp.sstr(sym)} = {sp.sstr(expr)}" for sym, expr in fn.definitions]
+        lines.append("")
     lines.append("Formulas:")
     for i in range(rows):
         for j in range(cols):
@@ -83,7 +87,8 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
 
 def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]:
     names = {a: mangle(a, PYTHON_RESERVED) for a in fn.arguments}
-    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)])
+    symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)],
+                                           *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
     body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\"):"]
@@ -93,15 +98,23 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
     avoid = set(names.values()) | {"shape", "out", "numpy", "_fails", "_bad", "on_invalid"}
     body.append("    _bad = _invalid_mask(on_invalid, shape)")
-    if fn.conditions:
-        conds = [c.xreplace(rename) for c in fn.conditions]
-        for cond, orig in zip(conds, fn.conditions):
-            (value,), terms = failure_rule(cond)
+    definitions = [(sym, expr.xreplace(rename)) for sym, expr in fn.definitions]
+    checks = fn.checked_after()
+
+    def test(indexes):
+        for index in indexes:
+            cond, orig = fn.conditions[index].xreplace(rename), fn.conditions[index]
+            (value,), terms = failure_rule(cond, definitions)
             scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"numpy.abs({printer.doprint(t)})"
                               for t in terms)
             body.append(f"    _bad = _fails(numpy.abs({printer.doprint(value)}) <= "
                         f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
                         f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r}, _bad)")
+
+    test(checks.get(-1, ()))
+    for k, (sym, expr) in enumerate(definitions):  # compact form: named quantities, in order
+        body.append(f"    {sym} = {printer.doprint(expr)}")
+        test(checks.get(k, ()))
     for cond in fn.nonnegative:  # a solution branch is real only where f >= 0
         (value,), terms = failure_rule(cond.xreplace(rename))
         scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"numpy.abs({printer.doprint(t)})"
@@ -109,7 +122,10 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         body.append(f"    _bad = _fails({printer.doprint(value)} < -{TOLERANCE['double']!r} * (1.0 + {scale}), "
                     f"shape, {fn.name!r}, {sp.sstr(cond) + ' >= 0'!r}, _bad)")
     entries = [e.xreplace(rename) for e in fn.matrix]
-    replacements, reduced = shared_subexpressions(entries, avoid)
+    if definitions:  # the definitions already share what there is to share
+        replacements, reduced = [], entries
+    else:
+        replacements, reduced = shared_subexpressions(entries, avoid)
     rows, cols = fn.shape
     body.append(f"    out = numpy.empty(shape + ({rows}, {cols}))")
     statements = [(str(sym), expr) for sym, expr in replacements]

@@ -14,7 +14,10 @@ from __future__ import annotations
 
 import sympy as sp
 
-from ..analysis.check import CheckReport
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # scipy loads only for the commands that check
+    from ..analysis.check import CheckReport
 from ..design import Design, GainDesign, gain_labels
 from ..model import S
 
@@ -54,6 +57,10 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
         lines.append(f"  target polynomial: {format_polynomial(part.target.polynomial)}")
     for note in part.notes:
         lines.append(f"  note: {note}")
+    if part.definitions:
+        lines.append(f"  definitions, evaluated in order ({len(part.definitions)}):")
+        lines.extend(f"    {sp.sstr(sym)} = {sp.sstr(expr)}" for sym, expr in part.definitions)
+        lines.append("  gains in these definitions:")
     rl, cl = gain_labels(design.model, part.part, part.gain.rows, part.gain.cols)
     for i in range(part.gain.rows):
         for j in range(part.gain.cols):
@@ -75,6 +82,11 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
             rl, cl = gain_labels(design.model, key, value.rows, value.cols)
             for i in range(value.rows):
                 lines.append(f"    {key}[{rl[i]}, :] = [" + ", ".join(sp.sstr(e) for e in value.row(i)) + "]")
+    if part.definitions:
+        for step in part.steps:
+            if step.name.endswith("_determinant"):
+                lines.append(f"  {step.title} (factored; the product of the pivots up to sign): "
+                             f"{sp.sstr(step.value)}")
     if part.free_gains:
         lines.append("  free gains (not fixed by the target): " + ", ".join(map(str, part.free_gains)))
     if part.valid_when:
