@@ -87,6 +87,9 @@ def controller_functions(design: Design) -> list[Function]:
         rows[1].append(sp.oo if hi is None else hi)
         rows[2].append(sp.oo if rate is None else rate)
     add("input_limits", "actuator", "U", sp.Matrix(rows))
+    aw = model.anti_windup or {}
+    if design.integral is not None and aw.get("tracking_time") is not None:
+        add("tracking_time", "anti-windup", "TT", sp.Matrix([[aw["tracking_time"]]]))
     return out
 
 
@@ -169,17 +172,7 @@ _BODY = '''
             return None
         if self.TRACKING_TIME is not None:
             return float(self.TRACKING_TIME(**values))
-        n, p = self.A.shape[0], self.Ki.shape[1]
-        if self.DISCRETE:
-            Aa = numpy.block([[self.A, numpy.zeros((n, p))], [self.T * self.C, numpy.eye(p)]])
-            Ba = numpy.vstack([self.B, self.T * self.D])
-            poles = numpy.log(numpy.linalg.eigvals(Aa - Ba @ numpy.hstack([self.K, self.Ki])) + 0j) / self.T
-        else:
-            Aa = numpy.block([[self.A, numpy.zeros((n, p))], [self.C, numpy.zeros((p, p))]])
-            Ba = numpy.vstack([self.B, self.D])
-            poles = numpy.linalg.eigvals(Aa - Ba @ numpy.hstack([self.K, self.Ki]))
-        slowest = numpy.min(numpy.abs(poles.real))
-        return 1.0 / slowest if numpy.isfinite(slowest) and slowest > 0 else 10.0 * self.T
+        return 10.0 * self.T  # default: ten sample periods
 
     def reset(self):
         """Zero the estimator state, the integrator state and the last input."""
@@ -274,7 +267,7 @@ def controller_class(design: Design, printer, names: dict[str, str]) -> list[str
               f"    ANTI_WINDUP = {aw['method']!r}",
               f"    N_STATES, N_INPUTS, N_OUTPUTS = {model.n_states}, {model.n_inputs}, {model.n_outputs}"]
     if tt is None:
-        lines.append("    TRACKING_TIME = None  # default: 1 / |real part| of the slowest integral-loop pole")
+        lines.append("    TRACKING_TIME = None  # default: ten sample periods")
     else:
         args = ", ".join(names[p.name] for p in model.parameters)
         rename = {p.symbol: sp.Symbol(names[p.name]) for p in model.parameters}
