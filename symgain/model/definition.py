@@ -22,7 +22,7 @@ from typing import Any, Mapping
 
 import sympy as sp
 
-from .errors import ModelError, Where
+from ..errors import ModelError, Where
 
 __all__ = ["Parameter", "TargetSpec", "Model", "SIGNS", "ROLES", "TARGET_KINDS"]
 
@@ -32,6 +32,7 @@ TARGET_KINDS = ("poles", "polynomial", "prototype", "damping", "settling", "z_po
 _IDENTIFIER = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 
 S = sp.Symbol("s")  # the Laplace variable, shared by all modules
+Z = sp.Symbol("z")  # the shift variable of sampled-data designs
 
 
 def _assumptions(sign: str) -> dict[str, bool]:
@@ -41,6 +42,10 @@ def _assumptions(sign: str) -> dict[str, bool]:
         "nonzero": {"nonzero": True, "real": True},
         "real": {"real": True},
     }[sign]
+
+
+# The standard normalized pole patterns a target may name (tables in symgain.design.prototypes).
+PROTOTYPE_NAMES: tuple[str, ...] = ("binomial", "butterworth", "bessel", "itae")
 
 
 @dataclass(frozen=True)
@@ -133,7 +138,7 @@ class Model:
     source: str | None = None
     notes: tuple[str, ...] = ()
     extra: Mapping[str, Any] = field(default_factory=dict)
-    sampling: Any = None  # symgain.sampling_keys.Sampling: a sampled-data design
+    sampling: Any = None  # symgain.model.sampling_keys.Sampling: a sampled-data design
     input_limits: tuple = ()  # (input, min, max, rate) for the emitted controller
     anti_windup: Mapping[str, Any] | None = None  # {"method": ..., "tracking_time": ...}
 
@@ -210,7 +215,7 @@ class Model:
         return {p.name: p.nominal for p in self.parameters if p.nominal is not None}
 
     def _repr_markdown_(self) -> str:
-        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.display`)."""
-        from .display import model_markdown
+        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.notebook`)."""
+        from ..notebook import model_markdown
 
         return model_markdown(self)

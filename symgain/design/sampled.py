@@ -1,8 +1,8 @@
 """Sampled-data design: gains K(params, T) that place the poles of Phi - Gamma K in z.
 
-The plant is sampled (:mod:`symgain.discretize`), each target becomes a monic
-polynomial in z (:mod:`symgain.discrete_targets`), and the single-input
-machinery of :mod:`symgain.placement` runs unchanged on the pair (Phi,
+The plant is sampled (:mod:`symgain.design.discretize`), each target becomes a monic
+polynomial in z (:mod:`symgain.design.discrete_targets`), and the single-input
+machinery of :mod:`symgain.design.placement` runs unchanged on the pair (Phi,
 Gamma): coefficient matching on det(zI - Phi + Gamma K) and, in the tests,
 Ackermann's formula as the second route. The conditions are those of the
 sampled plant: its controllability determinant det [Gamma, Phi Gamma, ...]
@@ -18,7 +18,7 @@ steady state x = Phi x + Gamma (N r - K x) gives N = (C (I - Phi + Gamma K)^-1 G
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
->>> from symgain.sampling_keys import Sampling
+>>> from symgain.model.sampling_keys import Sampling
 >>> T = Parameter.declare("T", sign="positive", range=(0.01, 0.1), role="design")
 >>> model = Model(name="cart", parameters=(T,), states=("p", "v"), inputs=("F",),
 ...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1]]),
@@ -32,9 +32,9 @@ from dataclasses import replace
 
 import sympy as sp
 
-from .errors import DesignError
-from .model import S, Model, TargetSpec
-from .discrete_targets import Z, resolve_z_target
+from ..errors import DesignError
+from ..model import S, Z, Model, TargetSpec
+from .discrete_targets import resolve_z_target
 from .discretize import sampled_plant
 from .validity import nonzero_conditions
 
@@ -95,7 +95,7 @@ def _tidy_part(part):
 
 def _relabel(part, target, sampled, symbol: str, estimator: bool = False):
     """The part in z: steps, polynomial and wording, with the target in z and the sampling conditions."""
-    from .design import Step
+    from .result import Step
 
     steps = []
     for st in part.steps:
@@ -115,8 +115,8 @@ def _relabel(part, target, sampled, symbol: str, estimator: bool = False):
 
 
 def _single_or_several(Phi, Gamma, spec, model: Model, part: str, inputs, states, avoid):
-    from .design import design_gain
-    from .multi_input import design_several_inputs
+    from .several_inputs import design_several_inputs
+    from .single_input import design_gain
 
     if Gamma.cols == 1 and "pattern" not in spec.values:
         return design_gain(Phi, Gamma, spec, part=part, symbol="K", states=states, avoid=avoid)
@@ -125,7 +125,7 @@ def _single_or_several(Phi, Gamma, spec, model: Model, part: str, inputs, states
 
 
 def _integral(model: Model, sampled, avoid, T):
-    from .design import Step
+    from .result import Step
 
     spec = model.integral
     if model.C is None or model.n_outputs == 0:
@@ -181,7 +181,7 @@ def _estimator(model: Model, sampled, avoid, T, feedback):
 
 def derive_sampled(model: Model):
     """The sampled-data Design of a model with ``sampling``."""
-    from .design import Design, Step
+    from .result import Design, Step
     from .feedforward import design_feedforward
 
     sampling = model.sampling

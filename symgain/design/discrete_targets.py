@@ -25,24 +25,12 @@ from __future__ import annotations
 
 import sympy as sp
 
-from .errors import ModelError
-from .model import S, TargetSpec
+from ..errors import ModelError
+from ..model import S, Z, TargetSpec
+from ..model.sampling_keys import is_z_target
 from .targets import Target, _is_zero, poles_polynomial, resolve_target
 
 __all__ = ["Z", "resolve_z_target", "map_poles", "z_of_s_polynomial", "is_z_target"]
-
-Z = sp.Symbol("z")  # the shift variable of sampled-data designs
-
-
-def is_z_target(spec: TargetSpec) -> bool:
-    """True for the targets that only make sense in z (z poles, deadbeat, a polynomial in z).
-
-    >>> is_z_target(TargetSpec("polynomial", {"polynomial": Z**2}))
-    True
-    """
-    if spec.kind in ("z_poles", "deadbeat"):
-        return True
-    return spec.kind == "polynomial" and Z in sp.sympify(spec.values["polynomial"]).free_symbols
 
 
 def _conjugate_groups(poles) -> list[tuple[sp.Expr, sp.Expr | None]]:

@@ -1,7 +1,7 @@
 """Model-file keys for the controller that runs: ``[discrete]``, ``[input_limits]``, anti-windup.
 
-``[discrete]`` makes the design sampled-data (see :mod:`symgain.discretize`
-and :mod:`symgain.discrete_design`); ``[input_limits]`` and the anti-windup
+``[discrete]`` makes the design sampled-data (see :mod:`symgain.design.discretize`
+and :mod:`symgain.design.sampled`); ``[input_limits]`` and the anti-windup
 keys of ``[integral]`` shape the emitted controller only (the gains do not
 depend on them).
 
@@ -23,15 +23,34 @@ from typing import Any
 
 import sympy as sp
 
-from .errors import ModelError, Where
+from ..errors import ModelError, Where
+from .definition import Z, TargetSpec
 from .expressions import parse_expression
 
-__all__ = ["Sampling", "read_sampling", "read_input_limits", "read_anti_windup",
-           "DISCRETE_KEYS", "ANTI_WINDUP_KEYS"]
+__all__ = ["Sampling", "read_sampling", "read_input_limits", "read_anti_windup", "is_z_target",
+           "DISCRETE_KEYS", "ANTI_WINDUP_KEYS", "METHODS"]
 
 DISCRETE_KEYS = {"sample_time", "method", "compute_delay", "estimator_form"}
 ANTI_WINDUP_KEYS = {"anti_windup", "tracking_time"}
 LIMIT_KEYS = {"min", "max", "rate"}
+METHODS = ("zoh", "euler", "tustin", "series")  # the holds of symgain.design.discretize
+
+
+def _check_keys(table: dict, allowed: set[str], where: Where) -> None:
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        raise ModelError(f"unknown key {unknown[0]!r}; expected one of {', '.join(sorted(allowed))}", where=where)
+
+
+def is_z_target(spec: TargetSpec) -> bool:
+    """True for the targets that only make sense in z (z poles, deadbeat, a polynomial in z).
+
+    >>> is_z_target(TargetSpec("polynomial", {"polynomial": Z**2}))
+    True
+    """
+    if spec.kind in ("z_poles", "deadbeat"):
+        return True
+    return spec.kind == "polynomial" and Z in sp.sympify(spec.values["polynomial"]).free_symbols
 
 
 @dataclass(frozen=True)
@@ -53,9 +72,6 @@ def _choice(table: dict, key: str, choices: tuple[str, ...], default: str, where
 
 def read_sampling(table: Any, symbols: dict, where: Where | None = None) -> Sampling:
     """The ``[discrete]`` table."""
-    from .discretize import METHODS
-    from .model_file import _check_keys
-
     where = where or Where(key="discrete")
     if not isinstance(table, dict):
         raise ModelError("must be a table", where=where)
@@ -79,8 +95,6 @@ def read_input_limits(table: Any, inputs: tuple[str, ...], symbols: dict,
                       where: Where | None = None) -> tuple[tuple[str, sp.Expr | None, sp.Expr | None,
                                                                sp.Expr | None], ...]:
     """``[input_limits]``: per input name ``{ min, max, rate }`` (any may be left out)."""
-    from .model_file import _check_keys
-
     where = where or Where(key="input_limits")
     if not isinstance(table, dict):
         raise ModelError("must be a table", where=where)

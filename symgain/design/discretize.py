@@ -44,12 +44,12 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from .errors import DesignError
+from ..errors import DesignError
+from ..model.sampling_keys import METHODS
 from .validity import nonzero_conditions
 
 __all__ = ["SampledPlant", "sampled_plant", "exp_times", "METHODS", "SERIES_ORDER"]
 
-METHODS = ("zoh", "euler", "tustin", "series")
 SERIES_ORDER = 8  # terms of the Taylor series of exp(M T) kept by method "series"
 MAX_ORDER = 8  # states + inputs above which the closed-form exponential is not tried
 

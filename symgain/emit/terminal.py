@@ -14,9 +14,9 @@ from __future__ import annotations
 
 import sympy as sp
 
-from .check import CheckReport
-from .design import Design, GainDesign, gain_labels
-from .model import S
+from ..analysis.check import CheckReport
+from ..design import Design, GainDesign, gain_labels
+from ..model import S
 
 __all__ = ["format_design", "format_check", "format_polynomial"]
 

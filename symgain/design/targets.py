@@ -17,8 +17,8 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from .errors import ModelError
-from .model import S, TargetSpec
+from ..errors import ModelError
+from ..model import S, TargetSpec
 
 __all__ = ["Target", "resolve_target", "poles_polynomial", "damping_from_overshoot"]
 

@@ -13,7 +13,7 @@ parameter):
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
->>> from symgain.sampling_keys import Sampling
+>>> from symgain.model.sampling_keys import Sampling
 >>> from symgain.design import derive
 >>> T = Parameter.declare("T", sign="positive", range=(0.01, 0.1), role="design")
 >>> model = Model(name="cart", parameters=(T,), states=("p", "v"), inputs=("F",),
@@ -31,10 +31,10 @@ import numpy as np
 import scipy.signal
 import sympy as sp
 
-from .check import CheckReport, PointResult, _distinct, _normalized_error, _real, sample_points, steady_state_error
-from .design import Design
-from .discrete_targets import Z
-from .validity import holds_at
+from ..design import Design
+from ..design.validity import holds_at
+from ..model import Z
+from .check_points import CheckReport, PointResult, _distinct, _normalized_error, _real, sample_points, steady_state_error
 
 __all__ = ["check_sampled_design", "scipy_sampled_plant"]
 

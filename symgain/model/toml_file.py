@@ -1,7 +1,7 @@
 """Read a model file (TOML, see docs/model-file.md) into a :class:`Model`.
 
 Nothing in the file is evaluated as code: every expression goes through
-:func:`symgain.expressions.parse_expression`.
+:func:`symgain.model.expressions.parse_expression`.
 
 >>> text = '''
 ... name = "cart"
@@ -33,9 +33,9 @@ from typing import Any
 
 import sympy as sp
 
-from .errors import ModelError, Where
+from ..errors import ModelError, Where
 from .expressions import parse_expression
-from .model import S, Model, Parameter, TargetSpec
+from .definition import PROTOTYPE_NAMES, S, Model, Parameter, TargetSpec
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -138,7 +138,7 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
             raise ModelError("deadbeat = true is the only form", where=where.child("deadbeat"))
         values["deadbeat"] = True
     elif kind == "polynomial":
-        from .discrete_targets import Z
+        from .definition import Z
 
         values["polynomial"] = parse_expression(table["polynomial"], symbols, where=where.child("polynomial"),
                                                 extra={"s": S, "z": Z})
@@ -154,15 +154,13 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
         if kind not in ("damping", "settling"):
             raise ModelError("extra_poles goes with damping or settling_time targets", where=where)
         values["extra_poles"] = _expr_list(table["extra_poles"], symbols, where.child("extra_poles"))
-    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.multi_input
+    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.design.several_inputs
         if key in table:
             values[key] = table[key]
     if kind == "prototype":
-        from .prototypes import PROTOTYPES
-
-        if values["prototype"] not in PROTOTYPES:
+        if values["prototype"] not in PROTOTYPE_NAMES:
             raise ModelError(f"unknown prototype {table['prototype']!r}; choose one of "
-                             f"{', '.join(PROTOTYPES)}", where=where.child("prototype"))
+                             f"{', '.join(PROTOTYPE_NAMES)}", where=where.child("prototype"))
     return TargetSpec(kind, values, where)
 
 
@@ -248,7 +246,7 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
     if "discrete" in data:
         targets["sampling"] = read_sampling(data["discrete"], symbols, top.child("discrete"))
     if "sampling" not in targets:
-        from .discrete_targets import is_z_target
+        from .sampling_keys import is_z_target
 
         for part in ("feedback", "estimator", "integral"):
             if part in targets and is_z_target(targets[part]):

@@ -9,7 +9,7 @@ interpolation in numpy; the tests compile the C and compare.
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.design import derive
->>> from symgain.sweep.schedule import compute_schedule, parse_axis
+>>> from symgain.analysis.schedule import compute_schedule, parse_axis
 >>> m = Parameter.declare("m", sign="positive", range=(1, 3))
 >>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
 ...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
@@ -28,8 +28,8 @@ from dataclasses import dataclass
 import numpy as np
 import sympy as sp
 
-from .evaluate import GainEvaluator
-from .schedule import GridAxis, Schedule
+from ..analysis.evaluate import GainEvaluator
+from ..analysis.schedule import GridAxis, Schedule
 
 __all__ = ["InterpolationError", "interpolate", "interpolation_errors", "lookup_table_c", "REFINE"]
 
