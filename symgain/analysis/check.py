@@ -31,54 +31,13 @@ from ..design import Design, GainDesign
 from ..errors import ModelError, Where
 from ..model import S, Model
 from ..design.validity import holds_at
+from .check_points import (CheckReport, PointResult, _distinct, _normalized_error, _real, sample_points,
+                           steady_state_error)
 
 __all__ = ["PointResult", "CheckReport", "sample_points", "check_design", "DEFAULT_TOLERANCE",
            "closed_loop_matrix", "augmented_matrices", "steady_state_error"]
 
 DEFAULT_TOLERANCE = 1e-6
-
-
-@dataclass(frozen=True)
-class PointResult:
-    index: int
-    values: dict
-    status: str  # "ok", "fail" or "skipped"
-    gain_error: float | None  # relative difference from scipy's place_poles (None: not comparable)
-    closed_loop_error: float | None  # normalized coefficient error of the closed loop vs the target
-    reason: str = ""
-
-
-@dataclass(frozen=True)
-class CheckReport:
-    tolerance: float
-    seed: int
-    points: dict = field(default_factory=dict)  # part -> list[PointResult]
-
-    @property
-    def passed(self) -> bool:
-        return all(p.status != "fail" for pts in self.points.values() for p in pts)
-
-    def counts(self, part: str) -> dict[str, int]:
-        out = {"ok": 0, "fail": 0, "skipped": 0}
-        for p in self.points[part]:
-            out[p.status] += 1
-        return out
-
-
-def sample_points(model: Model, n_points: int = 20, seed: int = 0) -> list[dict[str, float]]:
-    """The nominal point first, then seeded uniform samples inside the declared ranges."""
-    missing = [p.name for p in model.parameters if p.nominal is None]
-    if missing:
-        raise ModelError("has neither range nor nominal value; the check needs one",
-                         where=Where(model.source, f"parameters.{missing[0]}"))
-    rng = np.random.default_rng(seed)
-    points = [model.nominal_values()]
-    for _ in range(max(0, n_points - 1)):
-        point = {}
-        for p in model.parameters:
-            point[p.name] = float(rng.uniform(*p.range)) if p.range else p.nominal
-        points.append(point)
-    return points
 
 
 def augmented_matrices(A, B, C, D=None):
@@ -104,18 +63,6 @@ def closed_loop_matrix(part: str, A, B, C, gain, extra=None, D=None):
     raise ValueError(f"no closed-loop rule for part {part!r}")
 
 
-def steady_state_error(A, B, C, D, K, N) -> float:
-    """max |G(0) - I| of the closed loop x' = (A - B K) x + B N r, y = (C - D K) x + D N r.
-
-    >>> A = np.array([[0.0, 1.0], [0.0, 0.0]]); B = np.array([[0.0], [1.0]]); C = np.array([[1.0, 0.0]])
-    >>> steady_state_error(A, B, C, None, np.array([[6.0, 5.0]]), np.array([[6.0]])) < 1e-12
-    True
-    """
-    D = np.zeros((C.shape[0], B.shape[1])) if D is None else D
-    dc = -(C - D @ K) @ np.linalg.solve(A - B @ K, B @ N) + D @ N
-    return float(np.max(np.abs(dc - np.eye(dc.shape[0]))))
-
-
 def _reference_gain(part: str, A, B, C, poles, D=None):
     """scipy.signal.place_poles for the same problem."""
     with warnings.catch_warnings():
@@ -128,26 +75,6 @@ def _reference_gain(part: str, A, B, C, poles, D=None):
             Aa, Ba = augmented_matrices(A, B, C, D)
             return scipy.signal.place_poles(Aa, Ba, poles, rtol=1e-13, maxiter=200).gain_matrix
     return None
-
-
-def _normalized_error(char, target) -> float:
-    """Max difference of coefficients after scaling s by the size of the target roots."""
-    n = len(target) - 1
-    r = abs(target[-1]) ** (1.0 / n) if target[-1] != 0 else max(1.0, np.max(np.abs(np.roots(target))))
-    r = r or 1.0
-    scale = r ** np.arange(n + 1)
-    t = np.asarray(target) / scale
-    c = np.asarray(char) / scale
-    return float(np.max(np.abs(c - t)) / np.max(np.abs(t)))
-
-
-def _distinct(roots, rel=1e-3) -> bool:
-    scale = max(1.0, float(np.max(np.abs(roots))))
-    for i in range(len(roots)):
-        for j in range(i + 1, len(roots)):
-            if abs(roots[i] - roots[j]) < rel * scale:
-                return False
-    return True
 
 
 def _evaluator(model: Model, expr, free=(), definitions=()):
@@ -163,13 +90,6 @@ def _free_values(free, seed: int, idx: int) -> dict:
     """Values for free gains at one point (uniform in [0.5, 1.5], the same for every part)."""
     return {g: float(np.random.default_rng([seed, idx, zlib.crc32(str(g).encode())]).uniform(0.5, 1.5))
             for g in free}
-
-
-def _real(x):
-    x = np.array(x, dtype=complex)
-    if not np.all(np.isfinite(x)) or np.max(np.abs(x.imag), initial=0) > 1e-9 * max(1.0, np.max(np.abs(x))):
-        return None
-    return x.real
 
 
 def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 0,
@@ -248,6 +168,10 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
 def check_design(design: Design, n_points: int = 20, seed: int = 0,
                  tolerance: float = DEFAULT_TOLERANCE) -> CheckReport:
     """Check every part of a design at ``n_points`` sampled points (nominal first)."""
+    if design.sampled is not None:  # sampled-data designs: Phi, Gamma and gains in z
+        from .check_sampled import check_sampled_design
+
+        return check_sampled_design(design, n_points, seed, tolerance)
     points = sample_points(design.model, n_points, seed)
     report = CheckReport(tolerance, seed)
     for part in design.parts():

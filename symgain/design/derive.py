@@ -32,12 +32,16 @@ __all__ = ["derive"]
 
 
 def derive(model: Model, form: str = "auto") -> Design:
-    """Derive every part the model asks for.
+    """Derive every part the model asks for (in z when the model has a sample period).
 
     ``form`` is how single-input gains are written: "auto" (expanded formulas unless they
     would be large, then the compact form), "expanded" or "compact" (named definitions in
     order, see :mod:`symgain.design.compact`).
     """
+    if model.sampling is not None:
+        from .sampled import derive_sampled
+
+        return derive_sampled(model)
     avoid = set(model.symbols)
     nominal = {p.symbol: p.nominal for p in model.parameters if p.nominal is not None}
     feedback = estimator = integral = feedforward = None

@@ -80,6 +80,7 @@ class Design:
     estimator: GainDesign | None = None
     integral: GainDesign | None = None
     feedforward: GainDesign | None = None
+    sampled: Any = None  # symgain.design.discretize.SampledPlant of a sampled-data design
 
     def parts(self) -> list[GainDesign]:
         """The designed parts, in pipeline order."""

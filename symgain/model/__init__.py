@@ -16,9 +16,9 @@ nothing downstream knows where a model came from.
 >>> Parameter.declare("m", sign="positive", range=(1, 2)).nominal
 1.5
 """
-from .definition import S, Model, Parameter, TargetSpec
+from .definition import S, Z, Model, Parameter, TargetSpec
 from .toml_file import load_model, model_from_dict, model_from_text
 from .builders import model_from_equations, model_from_matrices
 
-__all__ = ["S", "Model", "Parameter", "TargetSpec", "load_model", "model_from_dict", "model_from_text",
+__all__ = ["S", "Z", "Model", "Parameter", "TargetSpec", "load_model", "model_from_dict", "model_from_text",
            "model_from_equations", "model_from_matrices"]
