@@ -14,7 +14,7 @@ evaluated at their nominal values when the simulation starts.
 ...      "input_limits": {"F": {"min": -40, "max": 40}}},
 ...     {"m": m}, ("p", "v"), ("F",), ("p",), "cart.toml")
 >>> tables["simulation"].duration, tables["simulation"].scenarios[0].reference
-(5.0, {'p': 0.5})
+(5.0, {'p': 1/2})
 >>> tables["requirements"].peak_input
 {'F': 4*m}
 >>> tables["input_limits"]["F"]
