@@ -140,4 +140,8 @@ def python_module(design: Design) -> str:
             '"""', "import numpy", "", f"__all__ = {[f.name for f in fns]!r}", _HELPER]
     for fn in fns:
         head += [""] + _function(design, fn, printer) + [""]
+    from .controller_python import controller_class  # the sampled controller built on the functions
+
+    head[head.index(_HELPER) - 1] = f"__all__ = {[f.name for f in fns] + ['Controller']!r}"
+    head += ["", controller_class(design, printer)]
     return "\n".join(head).rstrip() + "\n"
