@@ -1,0 +1,101 @@
+"""Figures of a simulation campaign: outputs and inputs against time, one PNG per scenario.
+
+Each panel shows the envelope (lowest to highest value at each time) over
+every sampled plant, the nominal plant in black, the worst point in red,
+the reference dashed, the actuator limits as red dashed lines and the
+settling-time requirement as a dotted vertical line. Runs that diverged
+stay out of the envelope (the legend counts them).
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from ..plots import new_figure
+
+__all__ = ["scenario_figure"]
+
+
+def _envelope(series):
+    stack = np.vstack(series)
+    with np.errstate(all="ignore"):
+        return np.nanmin(stack, axis=0), np.nanmax(stack, axis=0)
+
+
+def _limits_of(values, extra=()):
+    finite = np.concatenate([v[np.isfinite(v)] for v in values] + [np.asarray(extra, dtype=float)])
+    if finite.size == 0:
+        return None
+    low, high = float(finite.min()), float(finite.max())
+    pad = 0.08 * (high - low or max(abs(high), 1.0))
+    return low - pad, high + pad
+
+
+def scenario_figure(campaign, case_index: int, title: str):
+    """Outputs (top panels) and inputs (bottom panels) of one scenario over every point."""
+    setup = campaign.setup
+    runs = [r for r in campaign.runs_of(case_index) if r.trace is not None]
+    case = setup.cases[case_index]
+    worst = max(campaign.runs_of(case_index), key=lambda r: (r.score, -r.point))
+    outputs, inputs = list(setup.outputs), list(setup.inputs)
+    panels = len(outputs) + len(inputs)
+    fig = new_figure(9.0, 1.2 + 2.3 * panels)
+    axes = fig.subplots(panels, 1, sharex=True, squeeze=False)[:, 0]
+    kept = [r for r in runs if not r.trace.diverged]
+    diverged = len(runs) - len(kept)
+    nominal = next((r for r in runs if r.point == 0), None)
+    for j, name in enumerate(outputs):
+        ax = axes[j]
+        t = runs[0].trace.t if runs else np.zeros(1)
+        if kept:
+            low, high = _envelope([r.trace.y[:, j] for r in kept])
+            ax.fill_between(t, low, high, color="tab:blue", alpha=0.25, lw=0,
+                            label=f"envelope over {len(kept)} plants" + (f" ({diverged} diverged, left out)"
+                                                                         if diverged else ""))
+        ref = runs[0].trace.r[:, j] if runs else None
+        if ref is not None and np.any(ref):
+            ax.plot(t, ref, color="0.35", ls="--", lw=1.2, label="reference")
+        if nominal is not None:
+            ax.plot(t, nominal.trace.y[:, j], color="black", lw=1.8, label="nominal plant")
+        if worst.trace is not None and worst is not nominal:
+            ax.plot(t, worst.trace.y[:, j], color="tab:red", lw=1.6,
+                    label=f"worst: {setup.points[worst.point].label}")
+        lim = _limits_of([r.trace.y[:, j] for r in kept] or [np.zeros(1)], [0.0])
+        if lim:
+            ax.set_ylim(*lim)
+        if setup.limits.get("settling_time") is not None:
+            event = case.reference_time if case.reference is not None and np.any(case.reference) else 0.0
+            ax.axvline(event + setup.limits["settling_time"], color="tab:green", ls=":", lw=1.5,
+                       label="settling-time requirement")
+        ax.set_ylabel(f"output {name}")
+        ax.grid(True, alpha=0.3)
+        if j == 0:
+            ax.legend(loc="best", fontsize=8)
+    for i, name in enumerate(inputs):
+        ax = axes[len(outputs) + i]
+        if runs:
+            tu = runs[0].trace.t[:-1]
+            if kept:
+                low, high = _envelope([r.trace.u[:, i] for r in kept])
+                ax.fill_between(tu, low, high, color="tab:orange", alpha=0.3, lw=0, step="post",
+                                label="envelope")
+            if nominal is not None:
+                ax.step(tu, nominal.trace.u[:, i], where="post", color="black", lw=1.5, label="nominal plant")
+            if worst.trace is not None and worst is not nominal:
+                ax.step(tu, worst.trace.u[:, i], where="post", color="tab:red", lw=1.3, label="worst point")
+        extra = []
+        low_lim, high_lim = setup.input_range.get(name, (None, None))
+        for value, word in ((low_lim, "min"), (high_lim, "max")):
+            if value is not None and np.isfinite(value):
+                ax.axhline(value, color="tab:red", ls="--", lw=1.2, label=f"actuator {word} {value:g}")
+                extra.append(value)
+        lim = _limits_of([r.trace.u[:, i] for r in kept] or [np.zeros(1)], extra)
+        if lim:
+            ax.set_ylim(*lim)
+        ax.set_ylabel(f"input {name}")
+        ax.grid(True, alpha=0.3)
+        ax.legend(loc="best", fontsize=8)
+    axes[-1].set_xlabel("time [s]")
+    how = "controller at nominal values" if setup.gains == "nominal" else "controller scheduled on the true values"
+    fig.suptitle(f"{title}\nscenario '{case.name}': {how}, sampled every {case.T:.3g} s", fontsize=12)
+    fig.tight_layout()
+    return fig
