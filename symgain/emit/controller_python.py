@@ -100,9 +100,8 @@ _STEP = '''
             u = u + self.N @ r
         wanted = u
         u = numpy.clip(u, self.INPUT_MIN, self.INPUT_MAX)
-        if self._started:
-            step = self.INPUT_RATE * self.T
-            u = numpy.clip(u, self.u_last - step, self.u_last + step)
+        step = self.INPUT_RATE * self.T  # the rate limit counts from the last input (zero after reset)
+        u = numpy.clip(u, self.u_last - step, self.u_last + step)
         self.saturated = numpy.abs(u - wanted) > 1e-12 * (1.0 + numpy.abs(wanted))
         if self.q is not None:
             output = (self._C @ x + self._D @ u) if self.x_hat is None else y
@@ -111,7 +110,6 @@ _STEP = '''
             innovation = y - self._C @ self.x_hat - self._D @ u
             self.x_hat = self.x_hat + self.T * (self._A @ self.x_hat + self._B @ u + self.L @ innovation)
         self.u_last = u
-        self._started = True
         return u.copy()
 
     def _integrate(self, error, u, wanted):
@@ -231,7 +229,6 @@ def controller_class(design: Design, printer) -> str:
               f"        self.x_hat = numpy.zeros({model.n_states}) if self.L is not None else None",
               f"        self.q = numpy.zeros({n_out}) if self.Ki is not None else None",
               f"        self.u_last = numpy.zeros({model.n_inputs})",
-              f"        self.saturated = numpy.zeros({model.n_inputs}, dtype=bool)",
-              "        self._started = False"]
+              f"        self.saturated = numpy.zeros({model.n_inputs}, dtype=bool)"]
     del call
     return "\n".join(lines) + "\n" + _STEP
