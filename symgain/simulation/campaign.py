@@ -9,8 +9,8 @@ a process pool when there are many points.
 Defaults, chosen from the design's closed-loop poles at nominal values: the
 controller's sample period T = 0.02 / |fastest pole| (Euler emulation of a
 continuous design is then close to the continuous loop), the run length
-10 / |slowest real part| (about 2.5 times the 2 % settling estimate 4 / sigma,
-common practice), at most 20 000 samples. Without declared scenarios: a step
+20 / |slowest real part| (five times the 2 % settling estimate 4 / sigma,
+common practice, so that slower mismatched plants still show whether they settle), at most 20 000 samples. Without declared scenarios: a step
 of 0.1 in the first output's reference when the controller follows a
 reference (integral action or feedforward), else an initial offset of 0.1 in
 the state the first output measures.
@@ -69,7 +69,7 @@ class Run:
     point: int
     trace: Trace | None
     rows: list[Metric]
-    score: float
+    score: tuple  # (tier, size) from metrics.score; (2, inf) when the controller refused the point
     error: str | None = None
 
     @property
@@ -92,7 +92,7 @@ class Campaign:
     @property
     def worst(self) -> Run:
         """The run with the highest score (first among equals)."""
-        return max(self.runs, key=lambda r: (r.score, -r.point))
+        return max(self.runs, key=lambda r: (*r.score, -r.point))
 
     def runs_of(self, case: int) -> list[Run]:
         return [r for r in self.runs if r.case == case]
@@ -171,7 +171,7 @@ def prepare(design: Design, folder, *, table: SimulationTable | None = None, req
     if not slowest > 1e-12:
         slowest = fastest
         notes.append("a closed-loop pole lies on the imaginary axis at nominal values")
-    duration = float(duration or table.duration or 10.0 / slowest)
+    duration = float(duration or table.duration or 20.0 / slowest)
     T = float(sample_time or table.sample_time or 0.02 / fastest)
     if duration / T > MAX_SAMPLES:
         T = duration / MAX_SAMPLES
@@ -215,7 +215,7 @@ def run_point(setup: Setup, index: int) -> list[Run]:
     try:
         controller = new_controller(setup.module_path, setup.T, assumed)
     except ValueError as exc:  # the controller refuses these values (a validity condition fails)
-        return [Run(k, index, None, [], float("inf"), f"controller refused: {exc}") for k in range(len(setup.cases))]
+        return [Run(k, index, None, [], (2, float("inf")), f"controller refused: {exc}") for k in range(len(setup.cases))]
     plant = setup.plant.at(point.values, assumed)
     for case in setup.cases:
         trace = simulate(plant, controller, case, measures_outputs=setup.measures_outputs,

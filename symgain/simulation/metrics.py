@@ -65,7 +65,8 @@ def output_metrics(t, y, *, start: float, target: float, event_time: float, move
     t, y = np.asarray(t, dtype=float), np.asarray(y, dtype=float)
     if not np.all(np.isfinite(y)):
         return {"settling_time": float("inf"), "overshoot": float("inf") if moved else None,
-                "steady_state_error": float("inf"), "final": float("nan"), "settled": False}
+                "steady_state_error": float("inf"), "final": float("nan"), "settled": False,
+                "tail_spread": float("inf")}
     after = t >= event_time - 1e-12
     t, y = t[after], y[after]
     tail = max(5, int(np.ceil(TAIL * y.size)))
@@ -76,6 +77,7 @@ def output_metrics(t, y, *, start: float, target: float, event_time: float, move
     scale = abs(move) if moved else float(np.max(np.abs(y - final)))
     band = BAND * scale
     outside = np.flatnonzero(np.abs(y - final) > band + 1e-15)
+    spread = float(np.max(np.abs(y[-tail:] - final))) / band if band > 0 else 0.0  # <= 1: settled
     if outside.size == 0:
         settling, settled = 0.0, True
     elif outside[-1] >= y.size - tail:
@@ -86,7 +88,7 @@ def output_metrics(t, y, *, start: float, target: float, event_time: float, move
     if moved:
         overshoot = float(max(0.0, np.max(np.sign(move) * (y - final)) / abs(move))) if move else 0.0
     return {"settling_time": settling, "overshoot": overshoot, "steady_state_error": abs(target - final),
-            "final": final, "settled": settled}
+            "final": final, "settled": settled, "tail_spread": spread}
 
 
 def measure(trace, case, outputs, inputs, requirements: dict, peak_limits: dict) -> list[Metric]:
@@ -114,7 +116,8 @@ def measure(trace, case, outputs, inputs, requirements: dict, peak_limits: dict)
         else:
             om = output_metrics(trace.t, trace.y[:, j], start=start, target=target, event_time=event, moved=moved)
         name = outputs[j]
-        rows.append(Metric("settles", name, 1.0 if om["settled"] else float("inf"), 1.0))
+        spread = om["tail_spread"] if not om["settled"] else min(om["tail_spread"], 1.0)
+        rows.append(Metric("settles", name, spread, 1.0))  # largest swing in the last 5 % / the 2 % band
         rows.append(Metric("settling_time", name, om["settling_time"], requirements.get("settling_time"), "s"))
         if om["overshoot"] is not None:
             rows.append(Metric("overshoot", name, om["overshoot"], requirements.get("overshoot")))
@@ -128,11 +131,14 @@ def measure(trace, case, outputs, inputs, requirements: dict, peak_limits: dict)
     return rows
 
 
-def score(rows: list[Metric], duration: float) -> float:
-    """How bad a run is: the largest value/limit (above 1 fails); without limits, slowest settling / run."""
+def score(rows: list[Metric], duration: float) -> tuple[int, float]:
+    """How bad a run is, for ranking: (tier, size). Tier 1: an output does not settle (size: its
+    largest swing in the last 5 % of the run over the 2 % band); tier 0: the largest value/limit
+    (above 1 fails), or without limits the slowest settling time over the run length."""
+    unsettled = [r.value for r in rows if r.name == "settles" and not r.passed]
+    if unsettled:
+        return 1, max(unsettled)
     ratios = [r.ratio for r in rows if r.limit is not None and r.name != "settles"]
-    if any(r.name == "settles" and not r.passed for r in rows):
-        return float("inf")
-    if any(r.limit is not None for r in rows if r.name != "settles"):
-        return max(ratios)
-    return max([r.value / duration for r in rows if r.name == "settling_time"] or [0.0])
+    if ratios:
+        return 0, max(ratios)
+    return 0, max([r.value / duration for r in rows if r.name == "settling_time"] or [0.0])

@@ -2,9 +2,9 @@
 
 >>> from symgain.simulation.metrics import Metric
 >>> print(format_rows([Metric("settling_time", "p", 2.5, 2.0, "s"), Metric("overshoot", "p", 0.04, 0.1)], 5.0))
-    metric                  value     limit     verdict
-    settling time of p      2.5 s     2 s       FAIL
-    overshoot of p          4.0 %     10.0 %    pass
+    metric                value    limit   verdict
+    settling time of p    2.5 s    2 s     FAIL
+    overshoot of p        4.0 %    10.0 %  pass
 """
 from __future__ import annotations
 
@@ -32,7 +32,9 @@ def metric_title(row) -> str:
 def value_text(row, value: float, duration: float) -> str:
     """A value in engineering form: percent for overshoot, seconds with their unit."""
     if row.name == "settles":
-        return "yes" if np.isfinite(value) else "no"
+        if row.passed:
+            return "yes"
+        return "no (diverged)" if not np.isfinite(value) else f"no (swings {value:.3g} x the 2 % band at the end)"
     if not np.isfinite(value):
         return "not settled" if row.name == "settling_time" else "unbounded"
     if row.name == "overshoot":
