@@ -239,6 +239,10 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
 def check_design(design: Design, n_points: int = 20, seed: int = 0,
                  tolerance: float = DEFAULT_TOLERANCE) -> CheckReport:
     """Check every part of a design at ``n_points`` sampled points (nominal first)."""
+    if design.sampled is not None:  # sampled-data designs: Phi, Gamma and gains in z
+        from .check_sampled import check_sampled_design
+
+        return check_sampled_design(design, n_points, seed, tolerance)
     points = sample_points(design.model, n_points, seed)
     report = CheckReport(tolerance, seed)
     for part in design.parts():

@@ -74,6 +74,7 @@ class Design:
     estimator: GainDesign | None = None
     integral: GainDesign | None = None
     feedforward: GainDesign | None = None
+    sampled: Any = None  # symgain.discretize.SampledPlant of a sampled-data design
 
     def parts(self) -> list[GainDesign]:
         """The designed parts, in pipeline order."""
@@ -166,7 +167,11 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
 
 
 def derive(model: Model) -> Design:
-    """Derive every part the model asks for."""
+    """Derive every part the model asks for (in z when the model has a sample period)."""
+    if model.sampling is not None:
+        from .discrete_design import derive_sampled
+
+        return derive_sampled(model)
     from .estimator import design_estimator
     from .feedforward import design_feedforward
     from .integral_action import design_integral

@@ -28,7 +28,7 @@ __all__ = ["Parameter", "TargetSpec", "Model", "SIGNS", "ROLES", "TARGET_KINDS"]
 
 SIGNS = ("positive", "nonnegative", "nonzero", "real")
 ROLES = ("plant", "design")
-TARGET_KINDS = ("poles", "polynomial", "prototype", "damping", "settling")
+TARGET_KINDS = ("poles", "polynomial", "prototype", "damping", "settling", "z_poles", "deadbeat")
 _IDENTIFIER = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 
 S = sp.Symbol("s")  # the Laplace variable, shared by all modules
@@ -133,6 +133,9 @@ class Model:
     source: str | None = None
     notes: tuple[str, ...] = ()
     extra: Mapping[str, Any] = field(default_factory=dict)
+    sampling: Any = None  # symgain.sampling_keys.Sampling: a sampled-data design
+    input_limits: tuple = ()  # (input, min, max, rate) for the emitted controller
+    anti_windup: Mapping[str, Any] | None = None  # {"method": ..., "tracking_time": ...}
 
     def __post_init__(self):
         where = Where(self.source, "plant")

@@ -45,18 +45,20 @@ else:  # pragma: no cover
 __all__ = ["load_model", "model_from_text", "parse_matrix", "parse_target"]
 
 TOP_KEYS = {"name", "title", "parameters", "plant", "feedback", "estimator", "integral",
-            "feedforward", "discrete", "notes", "simulation", "requirements", "input_limits"}
+            "feedforward", "discrete", "input_limits", "notes", "simulation", "requirements"}
 PARAMETER_KEYS = {"meaning", "unit", "sign", "range", "nominal", "role"}
 PLANT_KEYS = {"states", "inputs", "outputs", "A", "B", "C", "D", "equations", "equilibrium",
               "output_equations"}
 TARGET_KEYS = {
     "poles": ("poles",),
+    "z_poles": ("z_poles",),
+    "deadbeat": ("deadbeat",),
     "polynomial": ("polynomial",),
     "prototype": ("prototype", "bandwidth"),
     "damping": ("damping", "natural_frequency"),
     "settling": ("settling_time", "overshoot"),
 }
-OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "z_poles", "input_direction", "output_direction"}
+OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "input_direction", "output_direction"}
 
 
 def load_model(path: str | Path) -> Model:
@@ -122,18 +124,24 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
     kinds = [kind for kind, keys in TARGET_KEYS.items() if keys[0] in table]
     if len(kinds) != 1:
         found = ", ".join(TARGET_KEYS[k][0] for k in kinds) or "none"
-        raise ModelError("give exactly one target (poles, polynomial, prototype, damping or "
-                         f"settling_time), found {found}", where=where)
+        raise ModelError("give exactly one target (poles, polynomial, prototype, damping, "
+                         f"settling_time, or for discrete designs z_poles or deadbeat), found {found}", where=where)
     kind = kinds[0]
     for key in TARGET_KEYS[kind]:
         if key not in table:
             raise ModelError(f"'{TARGET_KEYS[kind][0]}' needs '{key}' too", where=where)
     values: dict[str, Any] = {}
-    if kind == "poles":
-        values["poles"] = _expr_list(table["poles"], symbols, where.child("poles"))
+    if kind in ("poles", "z_poles"):
+        values[kind] = _expr_list(table[kind], symbols, where.child(kind))
+    elif kind == "deadbeat":
+        if table["deadbeat"] is not True:
+            raise ModelError("deadbeat = true is the only form", where=where.child("deadbeat"))
+        values["deadbeat"] = True
     elif kind == "polynomial":
+        from .discrete_targets import Z
+
         values["polynomial"] = parse_expression(table["polynomial"], symbols, where=where.child("polynomial"),
-                                                extra={"s": S})
+                                                extra={"s": S, "z": Z})
     elif kind == "prototype":
         if not isinstance(table["prototype"], str):
             raise ModelError("prototype must be a name", where=where.child("prototype"))
@@ -228,14 +236,29 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
         D = parse_matrix(plant["D"], symbols, pw.child("D")) if "D" in plant else None
         if C is None and outputs:
             C = _pick_states(outputs, states, pw.child("outputs"))
+    from .sampling_keys import ANTI_WINDUP_KEYS, read_anti_windup, read_input_limits, read_sampling
+
     targets = {}
     for part in ("feedback", "estimator", "integral"):
         if part in data:
-            targets[part] = parse_target(data[part], symbols, top.child(part))
+            table = data[part]
+            if part == "integral" and isinstance(table, dict):
+                targets["anti_windup"] = read_anti_windup(table, symbols, top.child(part))
+                table = {k: v for k, v in table.items() if k not in ANTI_WINDUP_KEYS}
+            targets[part] = parse_target(table, symbols, top.child(part))
     feedforward = _feedforward(data.get("feedforward"), top.child("feedforward"))
     if "discrete" in data:
-        raise ModelError("discrete-time designs are not supported yet", where=top.child("discrete"))
-    from .simulation.settings import read_simulation_tables  # [simulation], [requirements], [input_limits]
+        targets["sampling"] = read_sampling(data["discrete"], symbols, top.child("discrete"))
+    if "sampling" not in targets:
+        from .discrete_targets import is_z_target
+
+        for part in ("feedback", "estimator", "integral"):
+            if part in targets and is_z_target(targets[part]):
+                raise ModelError("z poles, deadbeat and polynomials in z need a sample period: add [discrete] "
+                                 "sample_time = ...", where=top.child(part))
+    if "input_limits" in data:
+        targets["input_limits"] = read_input_limits(data["input_limits"], inputs, symbols, top.child("input_limits"))
+    from .simulation.settings import read_simulation_tables  # [simulation], [requirements]
 
     extra.update(read_simulation_tables(data, symbols, states, inputs, outputs, file))
     title = data.get("title", "")

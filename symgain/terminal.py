@@ -109,6 +109,9 @@ def format_check(report: CheckReport, names: list[str]) -> str:
         c = report.counts(part)
         lines.append(f"  {c['ok']} ok, {c['fail']} failed, {c['skipped']} skipped")
         lines.append("")
+    if "sampled_plant" in report.points:
+        lines.append("sampled_plant: relative difference of Phi, Gamma from scipy.signal.cont2discrete "
+                     "(in the gain column); gains are compared on scipy's sampled plant, polynomials in z")
     lines.append("gain err: max |K - K_scipy| / max |K_scipy| (scipy.signal.place_poles; '-' where the"
                  " poles repeat or the gain is not unique)")
     lines.append("closed-loop err: max difference of the characteristic-polynomial coefficients of the"

@@ -66,6 +66,8 @@ def add_to(sub) -> None:
     r.add_argument("--no-corners", action="store_true", help="leave out the corners of the ranges")
     r.add_argument("--gains", choices=("nominal", "scheduled"),
                    help="nominal: controller at nominal values (default); scheduled: at the true values")
+    r.add_argument("--free-gain", action="append", metavar="NAME=VALUE",
+                   help="value of a gain the target leaves free (default 0), repeatable")
     r.add_argument("--jobs", type=int, default=None, metavar="N", help="worker processes (default: up to 4)")
     p.set_defaults(run=run_simulate)
 
@@ -117,12 +119,13 @@ def run_simulate(args) -> int:
     with tempfile.TemporaryDirectory(prefix="symgain-controller-") as module_folder:
         setup = prepare(design, module_folder, scenarios=scenarios, duration=args.duration,
                         sample_time=args.sample_time, points=args.points, seed=args.seed, gains=args.gains,
-                        corners=False if args.no_corners else None)
+                        corners=False if args.no_corners else None,
+                        free_gains={k: float(v) for k, v in _pairs(args.free_gain, "--free-gain").items()})
         with _progress(len(setup.points), "simulate", args.quiet) as tick:
             campaign = run_campaign(setup, jobs=args.jobs, progress=tick)
     plant = "nonlinear equations of motion" if setup.plant.nonlinear else "linear plant"
     print(f"{model.name}: emitted controller on the {plant}; {len(setup.points)} plant points x "
-          f"{len(setup.cases)} scenarios in {campaign.elapsed:.2f} s ({len(setup.points) / campaign.elapsed:.1f} "
+          f"{len(setup.cases)} scenario{'s' if len(setup.cases) > 1 else ''} in {campaign.elapsed:.2f} s ({len(setup.points) / campaign.elapsed:.1f} "
           f"points per second, {campaign.workers} process{'es' if campaign.workers > 1 else ''})")
     if setup.plant.nonlinear:
         print("outputs, states and inputs are deviations from the equilibrium the controller assumes")

@@ -17,8 +17,8 @@ argument or a local name get ``_p`` appended (documented in the header).
 ...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
 ...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
 >>> header, source = c_files(derive(model), "cart")
->>> [line for line in header.splitlines() if line.startswith("int ")]
-['int cart_feedback_gain(double m, double K[1][2]);']
+>>> [line for line in header.splitlines() if line.startswith("int ")][0]
+'int cart_feedback_gain(double m, double K[1][2]);'
 >>> "K[0][1] = 2*m;" in source
 True
 """
@@ -124,7 +124,8 @@ def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: b
     one = "1.0f" if ctype == "float" else "1.0"
     for k, cond in enumerate(conditions, start=1):
         (value,), terms = failure_rule(cond)
-        scale = " + ".join(f"{fabs}({printer.doprint(t)})" for t in terms)
+        scale = " + ".join(printer.doprint(sp.Float(abs(t))) if t.is_number else f"{fabs}({printer.doprint(t)})"
+                           for t in terms)
         lit = f"{tol!r}f" if ctype == "float" else repr(tol)
         lines.append(f"    if ({fabs}({printer.doprint(value)}) <= {lit} * ({one} + {scale})) {{")
         lines.append(f"        return {k};")
@@ -173,9 +174,17 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
              " * Gains from a linear model must be validated in simulation and on the machine",
              " * with safe limits; local codes, safety standards and licensed practice take",
              " * precedence. */"]
+    from .controller_c import controller_c
+    from .controller_python import controller_blocker, controller_functions
+
+    blocker = controller_blocker(design)
+    functions = design_functions(design) + (controller_functions(design) if blocker is None else [])
+    if blocker is not None:
+        intro[-1] = intro[-1][:-3]
+        intro += [f" * No controller functions: {blocker}. */"]
     header = intro + [f"#ifndef {guard}", f"#define {guard}", ""]
     source = intro + ["#include <math.h>", f'#include "{prefix}.h"', ""]
-    for fn in design_functions(design):
+    for fn in functions:
         names = _names(fn, set())
         rows, cols = fn.shape
         macro = f"{prefix}_{fn.name}".upper()
@@ -183,5 +192,9 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
         header += _comment(fn, names)
         header += [f"#define {macro}_ROWS {rows}", f"#define {macro}_COLS {cols}", sig + ";", ""]
         source += [sig, "{"] + _body(fn, names, printer, ctype, TOLERANCE[precision], cse) + ["}", ""]
+    if blocker is None:
+        h, src = controller_c(design, prefix, ctype, C_RESERVED)
+        header += h
+        source += src
     header += [f"#endif /* {guard} */"]
     return "\n".join(header) + "\n", "\n".join(source).rstrip() + "\n"

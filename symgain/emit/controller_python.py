@@ -1,234 +1,283 @@
-"""The ``Controller`` class of the emitted Python module (the shared controller contract).
+"""The ``Controller`` class of the emitted Python module: the controller that runs at period T.
 
-The class wraps the module's gain functions into a sampled controller: per
-sample, u = -K x_hat - Ki q + N r (x_hat = y when the model has no
-estimator; N r only with [feedforward]), clipped to the actuator range and
-rate from ``[input_limits]``; the integrator q[k+1] = q[k] + T (y - r) with
-anti-windup (conditional integration, or back-calculation); the estimator
-advanced by forward Euler with the applied (clipped) input. A continuous
-design is thereby emulated at the sample period T.
+One sample (``step``) does, in this order: the current-form estimate (when
+asked), u = -K x - Ki q + N r, saturation to [min, max] and to the rate limit,
+the integrator update with anti-windup, and the estimator update with the
+applied (clipped) u. A sampled-data design uses its own Phi, Gamma, K, L, Ki,
+N; a continuous design is emulated at T: the estimator and the integrator are
+advanced by forward Euler (x_hat += T (A x_hat + B u + L (y - C x_hat - D u)),
+q += T (y - r)).
+
+The class is built only from matrices the design holds, each computed by a
+function of the same module (``feedback_gain``, ``plant_Phi``, ...), so the
+validity conditions raise ``ValueError`` there. This module writes text; it
+derives nothing.
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.design import derive
 >>> from symgain.emit.python import python_module
->>> m = Parameter.declare("m", sign="positive", range=(1, 3))
+>>> m = Parameter.declare("m", sign="positive", range=(1, 2))
 >>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
 ...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
-...               feedback=TargetSpec("poles", {"poles": (-1, -2)}),
-...               extra={"input_limits": {"F": __import__("symgain.simulation.settings",
-...                      fromlist=["InputLimit"]).InputLimit(min=-1, max=1)}})
+...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
 >>> namespace = {}
 >>> exec(python_module(derive(model)), namespace)
 >>> ctl = namespace["Controller"](T=0.01, m=2.0)
->>> ctl.K.tolist()
-[[4.0, 6.0]]
->>> ctl.step([0.1, 0.0]).tolist(), ctl.saturated.tolist()
-([-0.4], [False])
->>> ctl.step([1.0, 0.0]).tolist(), ctl.saturated.tolist()
-([-1.0], [True])
->>> namespace["Controller"](T=0.01, m=-1.0)
-Traceback (most recent call last):
-...
-ValueError: Controller: m = -1 must be positive
+>>> ctl.step([1.0, 0.0]).tolist()
+[-2.0]
 """
 from __future__ import annotations
 
 import sympy as sp
 
 from ..design import Design
-from .common import PYTHON_RESERVED, design_functions, mangle, shared_subexpressions
+from .common import PYTHON_RESERVED, Function, mangle
 
-__all__ = ["controller_class", "constant_parameters"]
+__all__ = ["controller_functions", "controller_class", "controller_blocker", "CONTROLLER_DOC"]
 
-
-def constant_parameters(model) -> dict[str, float]:
-    """Parameters fixed in the controller: no range, or a range of zero width (name -> value)."""
-    return {p.name: p.nominal for p in model.parameters
-            if p.nominal is not None and (p.range is None or p.range[0] == p.range[1])}
+CONTROLLER_DOC = ("Controller(T=..., <parameters>): the controller that runs at sample period T "
+                  "(step, set_parameters, reset)")
 
 
-def _number(model, expr, default: str) -> str:
-    if expr is None:
-        return default
-    value = sp.sympify(expr).xreplace({p.symbol: p.nominal for p in model.parameters if p.nominal is not None})
-    if value.free_symbols:
-        raise ValueError(f"an input limit depends on {sorted(map(str, value.free_symbols))} without nominal values")
-    return repr(float(value))
+def _condition_exprs(conds):
+    return tuple(c.lhs - c.rhs if c.rhs != 0 else c.lhs for c in conds)
 
 
-def _plant_function(design: Design, printer, names: dict[str, str]) -> list[str]:
+def controller_blocker(design: Design) -> str | None:
+    """Why no controller can be written for this design (None when it can)."""
+    parts = design.parts()
+    if not parts or (design.feedback is None and design.integral is None):
+        return "the design has no feedback gain"
+    for part in parts:
+        if part.free_gains or part.gain.has(sp.nan) or "branches" in part.extra:
+            return f"the {part.part} gain is not unique (free gains or branches)"
+    if design.sampled is not None and design.model.sampling.estimator_form == "current" \
+            and design.model.D is not None and not sp.Matrix(design.model.D).is_zero_matrix:
+        return "the current-form estimator is written for D = 0"
+    return None
+
+
+def controller_functions(design: Design) -> list[Function]:
+    """Plant matrices and actuator limits that the controller needs, as module functions."""
     model = design.model
-    n, m = model.n_states, model.n_inputs
-    C = model.C if model.C is not None else sp.eye(n)
-    D = model.D if model.D is not None else sp.zeros(C.rows, m)
-    rename = {p.symbol: sp.Symbol(names[p.name]) for p in model.parameters}
-    mats = [sp.Matrix(M).xreplace(rename) for M in (model.A, model.B, C, D)]
-    entries = [e for M in mats for e in M]
-    replacements, reduced = shared_subexpressions(entries, set(names.values()) | {"out", "numpy"})
-    body = [f"def _plant_matrices({', '.join(names[p.name] for p in model.parameters)}):",
-            '    """A, B, C, D of the linear(ized) plant at the given parameter values."""']
-    body += [f"    {sym} = {printer.doprint(expr)}" for sym, expr in replacements]
-    k = 0
-    outs = []
-    for label, M in zip("ABCD", mats):
-        body.append(f"    {label} = numpy.zeros(({M.rows}, {M.cols}))")
-        for i in range(M.rows):
-            for j in range(M.cols):
-                if reduced[k] != 0:
-                    body.append(f"    {label}[{i}, {j}] = {printer.doprint(reduced[k])}")
-                k += 1
-        outs.append(label)
-    body.append("    return A, B, C, D")
-    return body
+    params = tuple(p.name for p in model.parameters)
+    meanings = tuple((p.name, p.meaning, p.unit, p.range) for p in model.parameters)
+    out = []
+
+    def add(name, part, label, matrix, conds=()):
+        out.append(Function(name, part, "matrix", label, sp.ImmutableMatrix(matrix), params,
+                            _condition_exprs(conds), meanings))
+
+    if design.sampled is not None:
+        add("plant_Phi", "sampled plant", "Phi", design.sampled.Phi, design.sampled.valid_when)
+        add("plant_Gamma", "sampled plant", "Gamma", design.sampled.Gamma, design.sampled.valid_when)
+    else:
+        add("plant_A", "plant", "A", model.A)
+        add("plant_B", "plant", "B", model.B)
+    if model.C is not None:
+        add("plant_C", "plant", "C", model.C)
+        D = model.D if model.D is not None else sp.zeros(model.n_outputs, model.n_inputs)
+        add("plant_D", "plant", "D", D)
+    limits = {name: (lo, hi, rate) for name, lo, hi, rate in model.input_limits}
+    rows = [[], [], []]
+    for name in model.inputs:
+        lo, hi, rate = limits.get(name, (None, None, None))
+        rows[0].append(-sp.oo if lo is None else lo)
+        rows[1].append(sp.oo if hi is None else hi)
+        rows[2].append(sp.oo if rate is None else rate)
+    add("input_limits", "actuator", "U", sp.Matrix(rows))
+    aw = model.anti_windup or {}
+    if design.integral is not None and aw.get("tracking_time") is not None:
+        add("tracking_time", "anti-windup", "TT", sp.Matrix([[aw["tracking_time"]]]))
+    return out
 
 
-_STEP = '''
+def _param_table(design: Design, names: dict[str, str]) -> list[str]:
+    lines = ["    PARAMETERS = {  # name: (nominal, sign, range)"]
+    for p in design.model.parameters:
+        rng = None if p.range is None else (float(p.range[0]), float(p.range[1]))
+        lines.append(f"        {names[p.name]!r}: ({p.nominal!r}, {p.sign!r}, {rng!r}),")
+    lines.append("    }")
+    return lines
+
+
+def _sample_period(design: Design, names: dict[str, str]):
+    """(keyword for T, parameter name of T or None, numeric T or None)."""
+    model = design.model
+    keyword = "T"
+    period = design.sampled.period if design.sampled is not None else None
+    pname = str(period) if period is not None and not period.is_number else None
+    if "T" in names.values() and pname != "T":
+        keyword = "T_sample"  # a plant parameter is already called T
+    fixed = float(period) if period is not None and period.is_number else None
+    if pname is not None:
+        pname = names[pname]
+    del model
+    return keyword, pname, fixed
+
+
+_BODY = '''
+    def __init__(self, {kw}=None, **parameters):
+        unknown = sorted(set(parameters) - set(self.PARAMETERS))
+        if unknown:
+            raise ValueError(f"unknown parameter {{unknown[0]!r}}; expected {{', '.join(self.PARAMETERS)}}")
+        if self.FIXED_PERIOD is not None:
+            if {kw} is not None and abs({kw} - self.FIXED_PERIOD) > 1e-12 * self.FIXED_PERIOD:
+                raise ValueError(f"the design was made for {kw} = {{self.FIXED_PERIOD}} s, not {{{kw}}}")
+            {kw} = self.FIXED_PERIOD
+        elif {kw} is None and self.PERIOD_PARAMETER is not None:
+            {kw} = parameters.get(self.PERIOD_PARAMETER, self.PARAMETERS[self.PERIOD_PARAMETER][0])
+        if {kw} is None:
+            raise ValueError("give the sample period {kw} (seconds)")
+        self.T = float({kw})
+        if not self.T > 0:
+            raise ValueError(f"the sample period must be positive, found {{self.T}}")
+        self.parameters = {{name: spec[0] for name, spec in self.PARAMETERS.items()}}
+        if self.PERIOD_PARAMETER is not None:
+            parameters[self.PERIOD_PARAMETER] = self.T
+        self.set_parameters(**parameters)
+        self.reset()
+
+    def set_parameters(self, **changes):
+        """Change parameters (a payload change at run time) and recompute every gain; states are kept."""
+        values = dict(self.parameters)
+        for name, value in changes.items():
+            if name not in self.PARAMETERS:
+                raise ValueError(f"unknown parameter {{name!r}}")
+            if self.PERIOD_PARAMETER == name and abs(float(value) - self.T) > 1e-12 * self.T:
+                raise ValueError(f"{{name}} is the sample period; make a new Controller to change it")
+            values[name] = float(value)
+        for name, value in values.items():
+            _, sign, rng = self.PARAMETERS[name]
+            if value is None:
+                raise ValueError(f"parameter {{name}} has no nominal value; give it")
+            if (sign == "positive" and not value > 0 or sign == "nonnegative" and not value >= 0
+                    or sign == "nonzero" and value == 0):
+                raise ValueError(f"{{name}} = {{value}} contradicts its declared sign ({{sign}})")
+            if rng is not None and not rng[0] <= value <= rng[1]:
+                raise ValueError(f"{{name}} = {{value}} lies outside its declared range [{{rng[0]}}, {{rng[1]}}]")
+        m = {{}}
+        for key, function in self._MATRICES.items():
+            m[key] = None if function is None else numpy.asarray(function(**values), dtype=numpy.float64)
+        self.parameters = values
+        self.K, self.Ki, self.L, self.N = m["K"], m["Ki"], m["L"], m["N"]
+        self.A, self.B, self.C, self.D = m["A"], m["B"], m["C"], m["D"]
+        limits = m["U"]
+        self.u_min, self.u_max, self.rate = limits[0], limits[1], limits[2]
+        self.tracking_time = self._tracking_time(values)
+
+    def _tracking_time(self, values):
+        if self.Ki is None:
+            return None
+        if self.TRACKING_TIME is not None:
+            return float(self.TRACKING_TIME(**values))
+        return 10.0 * self.T  # default: ten sample periods
+
+    def reset(self):
+        """Zero the estimator state, the integrator state and the last input."""
+        n, m = self.N_STATES, self.N_INPUTS
+        self.x_hat = numpy.zeros(n) if self.L is not None else None
+        self.q = numpy.zeros(self.Ki.shape[1]) if self.Ki is not None else None
+        self.u_last = numpy.zeros(m)
+        self.saturated = numpy.zeros(m, dtype=bool)
+
     def step(self, y, r=None):
-        """One sample: the input u to apply now (numpy array, one entry per input)."""
+        """One sample: measured y (outputs with an estimator, else the full state) and reference r -> u."""
         y = numpy.asarray(y, dtype=numpy.float64).reshape(-1)
-        if y.size != self._measured:
-            raise ValueError(f"step: y has {y.size} entries, expected {self._measured}")
-        r = numpy.zeros(self._outputs) if r is None else numpy.asarray(r, dtype=numpy.float64).reshape(-1)
-        if r.size != self._outputs:
-            raise ValueError(f"step: r has {r.size} entries, expected {self._outputs}")
-        x = y if self.x_hat is None else self.x_hat
-        u = -self.K @ x
+        width = self.N_OUTPUTS if self.L is not None else self.N_STATES
+        if y.shape[0] != width:
+            raise ValueError(f"y must hold {{width}} values, found {{y.shape[0]}}")
+        p = self.N_OUTPUTS
+        r = numpy.zeros(p) if r is None else numpy.asarray(r, dtype=numpy.float64).reshape(-1)
+        if self.L is not None and self.CURRENT_FORM:
+            self.x_hat = self.x_hat + self.L @ (y - self.C @ self.x_hat)
+        x = self.x_hat if self.L is not None else y
+        u_want = -self.K @ x
         if self.Ki is not None:
-            u = u - self.Ki @ self.q
-        if self.N is not None:
-            u = u + self.N @ r
-        wanted = u
-        u = numpy.clip(u, self.INPUT_MIN, self.INPUT_MAX)
-        step = self.INPUT_RATE * self.T  # the rate limit counts from the last input (zero after reset)
-        u = numpy.clip(u, self.u_last - step, self.u_last + step)
-        self.saturated = numpy.abs(u - wanted) > 1e-12 * (1.0 + numpy.abs(wanted))
-        if self.q is not None:
-            output = (self._C @ x + self._D @ u) if self.x_hat is None else y
-            self._integrate(output - r, u, wanted)
-        if self.x_hat is not None:
-            innovation = y - self._C @ self.x_hat - self._D @ u
-            self.x_hat = self.x_hat + self.T * (self._A @ self.x_hat + self._B @ u + self.L @ innovation)
+            u_want = u_want - self.Ki @ self.q
+        if self.N is not None and r.shape[0]:
+            u_want = u_want + self.N @ r
+        u = numpy.clip(u_want, self.u_min, self.u_max)
+        step_limit = self.rate * self.T
+        u = numpy.clip(u, self.u_last - step_limit, self.u_last + step_limit)
+        self.saturated = u != u_want
+        if self.Ki is not None:
+            measured = y if self.L is not None else self.C @ y + self.D @ u
+            e = measured - r
+            if self.ANTI_WINDUP == "back_calculation":
+                correction = numpy.linalg.pinv(self.Ki) @ (u - u_want) / self.tracking_time
+                self.q = self.q + self.T * (e - correction)
+            else:
+                push = -self.Ki @ (self.T * e)
+                high = self.saturated & (u_want > u)
+                low = self.saturated & (u_want < u)
+                if not numpy.any(high & (push > 0) | low & (push < 0)):
+                    self.q = self.q + self.T * e
+        if self.L is not None:
+            xh, L, C, D = self.x_hat, self.L, self.C, self.D
+            if self.CURRENT_FORM:
+                self.x_hat = self.A @ xh + self.B @ u
+            elif self.DISCRETE:
+                self.x_hat = self.A @ xh + self.B @ u + L @ (y - C @ xh - D @ u)
+            else:
+                self.x_hat = xh + self.T * (self.A @ xh + self.B @ u + L @ (y - C @ xh - D @ u))
         self.u_last = u
         return u.copy()
-
-    def _integrate(self, error, u, wanted):
-        if self.ANTI_WINDUP == "back_calculation":
-            correction = numpy.linalg.pinv(self.Ki) @ (u - wanted) / self.tracking_time
-            self.q = self.q + self.T * (error - correction)
-            return
-        q_next = self.q + self.T * error
-        if self.saturated.any():
-            push = -self.Ki @ (q_next - self.q)  # change of u the integration would cause
-            outward = numpy.sign(wanted - u)  # direction in which each clipped input is held
-            if numpy.any(self.saturated & (push * outward > 0)):
-                return  # conditional integration: hold q while it would drive further into the limit
-        self.q = q_next
 '''
 
 
-def controller_class(design: Design, printer) -> str:
-    """The text of the ``Controller`` class (and its plant-matrix helper) for the module."""
+def controller_class(design: Design, printer, names: dict[str, str]) -> list[str]:
+    """The text of ``class Controller`` (uses the module's gain and plant functions)."""
     model = design.model
-    names = {p.name: mangle(p.name, PYTHON_RESERVED) for p in model.parameters}
-    constants = constant_parameters(model)
-    variable = [p for p in model.parameters if p.name not in constants]
-    fns = {(f.part, f.key): f for f in design_functions(design)}
-    free = sorted({a for f in fns.values() for a in f.arguments if a not in names})
-    for a in free:
-        names[a] = mangle(a, PYTHON_RESERVED)
-    limits = model.extra.get("input_limits", {})
-    mins = [_number(model, getattr(limits.get(u), "min", None), "-numpy.inf") for u in model.inputs]
-    maxs = [_number(model, getattr(limits.get(u), "max", None), "numpy.inf") for u in model.inputs]
-    rates = [_number(model, getattr(limits.get(u), "rate", None), "numpy.inf") for u in model.inputs]
-    integral_table = model.extra.get("integral_options", {})
-    anti_windup = integral_table.get("anti_windup", "clamp")
-    tracking = integral_table.get("tracking_time")
-    estimator = design.estimator is not None
-    n_out = model.n_outputs if model.C is not None else model.n_states
-    kw = [f"{names[p.name]}={p.nominal!r}" for p in variable] + [f"{names[a]}=0.0" for a in free]
-    call = ", ".join([f"{names[p.name]}={names[p.name]}" for p in model.parameters])
-    lines = [*_plant_function(design, printer, names), "", "",
-             "class Controller:",
-             f'    """Sampled controller of {model.name}: u = -K x_hat - Ki q + N r, clipped to the actuator limits.',
+    kw, pname, fixed = _sample_period(design, names)
+    discrete = design.sampled is not None
+    K_part = design.integral if design.integral is not None else design.feedback
+    K_fn = "integral_gain" if design.integral is not None else "feedback_gain"
+    matrices = {
+        "K": K_fn, "Ki": "integral_integral_gain" if design.integral is not None else None,
+        "L": "estimator_gain" if design.estimator is not None else None,
+        "N": "feedforward_gain" if design.feedforward is not None else None,
+        "A": "plant_Phi" if discrete else "plant_A", "B": "plant_Gamma" if discrete else "plant_B",
+        "C": "plant_C" if model.C is not None else None, "D": "plant_D" if model.C is not None else None,
+        "U": "input_limits",
+    }
+    del K_part
+    aw = model.anti_windup or {"method": "clamp", "tracking_time": None}
+    tt = aw.get("tracking_time")
+    form = model.sampling.estimator_form if discrete else "prediction"
+    kind = ("sampled-data design" + (f" at T = {fixed:g} s" if fixed else "")) if discrete else \
+        "continuous design emulated at T (estimator and integrator by forward Euler)"
+    lines = ["", "", "class Controller:",
+             f'    """The controller of {model.name} that runs at a sample period T ({kind}).',
              "",
-             "    Built from the closed-form gains of this module. T is the sample period in seconds; the",
-             "    continuous design is emulated at T (estimator and integrator advanced by forward Euler).",
-             "    Keyword arguments: the parameters (defaults: nominal values)"
-             + (", and free gains left by the target (default 0)" if free else "") + ".",
-             f"    step(y) takes {'the measured outputs ' + str(list(model.outputs)) if estimator else 'the full state ' + str(list(model.states))}.",
-             "    Validate in simulation and on the machine with safe limits before use.",
-             '    """',
-             "",
-             f"    PARAMETERS = {tuple(names[p.name] for p in variable) + tuple(names[a] for a in free)!r}",
-             f"    NOMINAL = {{{', '.join(f'{names[p.name]!r}: {p.nominal!r}' for p in variable)}}}",
-             f"    CONSTANTS = {{{', '.join(f'{names[k]!r}: {v!r}' for k, v in constants.items())}}}",
-             f"    SIGNS = {{{', '.join(f'{names[p.name]!r}: {p.sign!r}' for p in variable)}}}",
-             f"    RANGES = {{{', '.join(f'{names[p.name]!r}: {p.range!r}' for p in variable if p.range)}}}",
-             f"    INPUT_MIN = numpy.array([{', '.join(mins)}])",
-             f"    INPUT_MAX = numpy.array([{', '.join(maxs)}])",
-             f"    INPUT_RATE = numpy.array([{', '.join(rates)}])",
-             f"    ANTI_WINDUP = {anti_windup!r}",
-             "",
-             f"    def __init__(self, T, *, {', '.join(kw)}):" if kw else "    def __init__(self, T):",
-             "        T = float(T)",
-             "        if not T > 0.0 or not numpy.isfinite(T):",
-             '            raise ValueError(f"Controller: the sample period T = {T} must be a positive number")',
-             "        self.T = T",
-             "        self._values = {}",
-             f"        self._measured = {model.n_outputs if estimator else model.n_states}",
-             f"        self._outputs = {n_out}",
-             f"        self.tracking_time = {tracking!r}" if tracking is not None else "        self.tracking_time = None",
-             f"        self.set_parameters({', '.join(f'{v}={v}' for v in [names[p.name] for p in variable] + [names[a] for a in free])})",
-             "        self.reset()",
-             "",
-             "    def set_parameters(self, **values):",
-             '        """New parameter values (for example a payload change); recomputes every gain."""',
-             "        for name, value in values.items():",
-             "            if name not in self.PARAMETERS:",
-             '                raise ValueError(f"Controller: unknown parameter {name!r}; expected one of {self.PARAMETERS}")',
-             "            value = float(value)",
-             "            sign = self.SIGNS.get(name)",
-             "            if sign == 'positive' and not value > 0 or sign == 'nonnegative' and not value >= 0 \\",
-             "                    or sign == 'nonzero' and value == 0 or not numpy.isfinite(value):",
-             '                raise ValueError(f"Controller: {name} = {value:g} must be {sign}")',
-             "            low, high = self.RANGES.get(name, (-numpy.inf, numpy.inf))",
-             "            if not low <= value <= high:",
-             '                raise ValueError(f"Controller: {name} = {value:g} lies outside its declared range [{low:g}, {high:g}]")',
-             "        merged = {**self._values, **{k: float(v) for k, v in values.items()}}",
-             "        p = {**self.CONSTANTS, **merged}"]
-    gain_args = lambda f: ", ".join(f"{names[a]}=p[{names[a]!r}]" for a in f.arguments)  # noqa: E731
-    if design.integral is not None:
-        fk, fki = fns[("integral", "gain")], fns[("integral", "integral_gain")]
-        lines += [f"        K = {fk.name}({gain_args(fk)})", f"        Ki = {fki.name}({gain_args(fki)})"]
-    elif design.feedback is not None:
-        fk = fns[("feedback", "gain")]
-        lines += [f"        K = {fk.name}({gain_args(fk)})", "        Ki = None"]
+             f"    Controller({kw}=..., <parameters as keywords; defaults are the nominal values>);",
+             "    step(y, r=None) -> u, set_parameters(**changes), reset().",
+             "    Law per sample: u = -K x_hat - Ki q + N r, clipped to [u_min, u_max] and to rate * T per",
+             f"    sample; integrator q += T (y - r) with anti-windup ({aw['method']}); estimator "
+             f"({form} form) advanced with the applied u.",
+             "    Gains from a linear model must be validated in simulation and on the machine with safe limits;",
+             "    local codes, safety standards and licensed practice take precedence.",
+             '    """', ""]
+    lines += _param_table(design, names)
+    lines += [f"    FIXED_PERIOD = {fixed!r}",
+              f"    PERIOD_PARAMETER = {pname!r}",
+              f"    DISCRETE = {discrete!r}",
+              f"    CURRENT_FORM = {form == 'current' and design.estimator is not None!r}",
+              f"    ANTI_WINDUP = {aw['method']!r}",
+              f"    N_STATES, N_INPUTS, N_OUTPUTS = {model.n_states}, {model.n_inputs}, {model.n_outputs}"]
+    if tt is None:
+        lines.append("    TRACKING_TIME = None  # default: ten sample periods")
     else:
-        lines += [f"        K = numpy.zeros(({model.n_inputs}, {model.n_states}))", "        Ki = None"]
-    if design.estimator is not None:
-        fl = fns[("estimator", "gain")]
-        lines.append(f"        L = {fl.name}({gain_args(fl)})")
-    else:
-        lines.append("        L = None")
-    if design.feedforward is not None:
-        fn = fns[("feedforward", "gain")]
-        lines.append(f"        N = {fn.name}({gain_args(fn)})")
-    else:
-        lines.append("        N = None")
-    pargs = ", ".join(f"{names[p.name]}=p[{names[p.name]!r}]" for p in model.parameters)
-    lines += [f"        self._A, self._B, self._C, self._D = _plant_matrices({pargs})",
-              "        self.K, self.Ki, self.L, self.N = K, Ki, L, N",
-              "        if self.Ki is not None and self.ANTI_WINDUP == 'back_calculation' and self.tracking_time is None:",
-              "            poles = numpy.linalg.eigvals(self._A - self._B @ self.K)",
-              "            self.tracking_time = 1.0 / max(numpy.min(numpy.abs(poles.real)), 1e-12)",
-              "        self._values = merged",
-              "",
-              "    def reset(self):",
-              '        """Zero the estimator state, the integrator state and the last input."""',
-              f"        self.x_hat = numpy.zeros({model.n_states}) if self.L is not None else None",
-              f"        self.q = numpy.zeros({n_out}) if self.Ki is not None else None",
-              f"        self.u_last = numpy.zeros({model.n_inputs})",
-              f"        self.saturated = numpy.zeros({model.n_inputs}, dtype=bool)"]
-    del call
-    return "\n".join(lines) + "\n" + _STEP
+        args = ", ".join(names[p.name] for p in model.parameters)
+        rename = {p.symbol: sp.Symbol(names[p.name]) for p in model.parameters}
+        lines.append(f"    TRACKING_TIME = staticmethod(lambda {args + ', ' if args else ''}**_: "
+                     f"{printer.doprint(sp.sympify(tt).xreplace(rename))})")
+    lines.append("    _MATRICES = {" + ", ".join(f"{k!r}: {v if v else 'None'}" for k, v in matrices.items()) + "}")
+    lines += _BODY.format(kw=kw).split("\n")
+    return lines
+
+
+def keyword_names(design: Design) -> dict[str, str]:
+    """Model parameter name -> keyword used in the emitted module."""
+    return {p.name: mangle(p.name, PYTHON_RESERVED) for p in design.model.parameters}

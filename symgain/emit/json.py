@@ -65,6 +65,12 @@ def design_to_dict(design: Design) -> dict:
         out["plant_notes"] = list(model.notes)
     if model.extra.get("equilibrium"):
         out["equilibrium"] = {str(k): sp.sstr(v) for k, v in model.extra["equilibrium"].items()}
+    if design.sampled is not None:
+        sampled = design.sampled
+        out["sampled"] = {"sample_time": sp.sstr(sampled.period), "method": sampled.method,
+                          "Phi": _matrix(sampled.Phi), "Gamma": _matrix(sampled.Gamma),
+                          "valid_when": [sp.sstr(c) for c in sampled.valid_when], "notes": list(sampled.notes),
+                          "estimator_form": model.sampling.estimator_form}
     sensitivity = sensitivity_matrices(design)
     for part in design.parts():
         out[part.part] = _part(part, sensitivity.get(part.part))

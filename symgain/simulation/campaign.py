@@ -10,10 +10,13 @@ Defaults, chosen from the design's closed-loop poles at nominal values: the
 controller's sample period T = 0.02 / |fastest pole| (Euler emulation of a
 continuous design is then close to the continuous loop), the run length
 20 / |slowest real part| (five times the 2 % settling estimate 4 / sigma,
-common practice, so that slower mismatched plants still show whether they settle), at most 20 000 samples. Without declared scenarios: a step
-of 0.1 in the first output's reference when the controller follows a
-reference (integral action or feedforward), else an initial offset of 0.1 in
-the state the first output measures.
+common practice, so that slower mismatched plants still show whether they
+settle), at most 20 000 samples; a sampled-data design keeps its own period.
+Without declared scenarios: a step of 0.1 in the first output's reference
+when the controller follows a reference (integral action or feedforward),
+made smaller (one significant digit) when holding it would take more than
+half of an actuator limit; else an initial offset of 0.1 in the state the
+first output measures.
 """
 from __future__ import annotations
 
@@ -26,7 +29,7 @@ import sympy as sp
 
 from ..design import Design
 from ..errors import ModelError, Where
-from .controller import load_controller_module, new_controller, write_controller_module
+from .controller import fix_free_gains, load_controller_module, new_controller, write_controller_module
 from .metrics import Metric, measure, score
 from .plant import PlantSpec
 from .points import Point, mismatch_points
@@ -54,7 +57,7 @@ class Setup:
     points: tuple[Point, ...]
     nominal: dict
     gains: str
-    T: float
+    T: float | None  # the controller's period for a continuous design; None: the sampled design's own
     duration: float
     limits: dict  # settling_time, overshoot, steady_state_error -> float or None
     peak_limits: dict  # input -> float
@@ -113,30 +116,57 @@ def _vector(mapping: dict, names, nominal, symbols, where) -> np.ndarray | None:
     return np.array([_value(mapping[n], nominal, symbols, f"{where}.{n}") if n in mapping else 0.0 for n in names])
 
 
-def _poles(design: Design, path, nominal) -> np.ndarray:
-    """Closed-loop poles at nominal (regulator, integrator and estimator), from the emitted controller's gains."""
-    ctl = new_controller(path, 1.0, nominal)
-    plant = PlantSpec.from_model(design.model).at(nominal, nominal)
-    A, B, C = plant.A, plant.B, plant.C
+def _poles(controller) -> np.ndarray:
+    """Closed-loop poles at nominal in s (regulator with integrator, and estimator), from the emitted
+    controller's own matrices; a sampled-data design's z poles map back by s = ln(z) / T."""
+    A, B, C, D = controller.A, controller.B, controller.C, controller.D
+    K, Ki, L = controller.K, controller.Ki, controller.L
+    discrete = bool(getattr(controller, "DISCRETE", False))
     poles = []
-    if ctl.Ki is not None:
-        p = ctl.Ki.shape[1]
-        Aa = np.block([[A - B @ ctl.K, -B @ ctl.Ki], [C - plant.D @ ctl.K, np.zeros((p, p))]])
+    if Ki is not None:
+        p = Ki.shape[1]
+        h = controller.T if discrete else 1.0  # q[k+1] = q[k] + T (y - r), or q' = y - r
+        Aa = np.block([[A - B @ K, -B @ Ki], [h * (C - D @ K), (np.eye(p) if discrete else 0.0) - h * D @ Ki]])
         poles.append(np.linalg.eigvals(Aa))
     else:
-        poles.append(np.linalg.eigvals(A - B @ ctl.K))
-    if ctl.L is not None:
-        poles.append(np.linalg.eigvals(A - ctl.L @ C))
-    return np.concatenate(poles)
+        poles.append(np.linalg.eigvals(A - B @ K))
+    if L is not None:
+        poles.append(np.linalg.eigvals(A - L @ C))
+    poles = np.concatenate(poles).astype(complex)
+    if discrete:
+        with np.errstate(divide="ignore"):
+            poles = np.log(poles) / controller.T  # a pole at z = 0 (deadbeat) maps to -inf: fastest
+        poles = np.where(np.isfinite(poles), poles, -1.0 / controller.T)
+    return poles
 
 
-def _default_scenario(design: Design) -> Scenario:
+def _default_step(plant, limits, output_index: int) -> float:
+    """DEFAULT_STEP, made smaller when holding it would need more than half an actuator limit
+    (the steady state [A B; C D] [x; u] = [0; r], least squares)."""
+    A, B, C, D = plant.A, plant.B, plant.C, plant.D
+    n, p = A.shape[0], C.shape[0]
+    r = np.zeros(p)
+    r[output_index] = 1.0
+    M = np.block([[A, B], [C, D]])
+    u = np.linalg.lstsq(M, np.concatenate([np.zeros(n), r]), rcond=None)[0][n:]
+    step = DEFAULT_STEP
+    low, high = limits
+    for i, ui in enumerate(u):
+        bound = min(abs(v[i]) for v in (low, high) if v is not None and np.isfinite(v[i]) and v[i] != 0) \
+            if any(v is not None and np.isfinite(v[i]) and v[i] != 0 for v in (low, high)) else np.inf
+        if abs(ui) * step > 0.5 * bound:
+            step = float(f"{0.5 * bound / abs(ui):.1g}")
+    return step
+
+
+def _default_scenario(design: Design, plant, limits) -> Scenario:
     model = design.model
     follows = design.integral is not None or design.feedforward is not None
     outputs = model.outputs or model.states
     if follows:
-        return Scenario(name=f"step of {DEFAULT_STEP:g} in the reference of {outputs[0]}",
-                        reference={outputs[0]: sp.Float(DEFAULT_STEP)})
+        step = _default_step(plant, limits, 0)
+        return Scenario(name=f"step of {step:g} in the reference of {outputs[0]}",
+                        reference={outputs[0]: sp.Float(step)})
     state = model.states[0]
     if model.C is not None and model.C.rows:
         row = list(model.C[0, :])
@@ -148,7 +178,7 @@ def _default_scenario(design: Design) -> Scenario:
 
 def prepare(design: Design, folder, *, table: SimulationTable | None = None, requirements: Requirements | None = None,
             scenarios=None, duration=None, sample_time=None, points=None, seed=None, gains=None,
-            corners=None) -> Setup:
+            corners=None, free_gains=None) -> Setup:
     """The setup of a campaign; keyword arguments override the model file's [simulation] table."""
     model = design.model
     if design.feedback is None and design.integral is None:
@@ -162,24 +192,42 @@ def prepare(design: Design, folder, *, table: SimulationTable | None = None, req
         raise ModelError(f"simulation needs a nominal value (or range) for {', '.join(missing)}",
                          where=Where(model.source, "parameters"))
     symbols = model.symbols
+    notes = []
+    design, free = fix_free_gains(design, free_gains)
+    if free:
+        notes.append("free gains fixed for the simulation (any value places the poles): "
+                     + ", ".join(f"{k} = {v:g}" for k, v in free.items()))
     path = str(write_controller_module(design, folder))
     load_controller_module(path)
-    poles = _poles(design, path, nominal)
-    notes = []
+    sampled = getattr(design, "sampled", None) is not None
+    try:
+        probe = new_controller(path, None if sampled else 1.0, nominal)
+    except ValueError as exc:
+        raise ModelError(f"the emitted controller refuses the nominal values: {exc}", where=Where(model.source)) \
+            from None
+    poles = _poles(probe)
     fastest = float(np.max(np.abs(poles))) if poles.size else 1.0
     slowest = float(np.min(np.abs(poles.real))) if poles.size else 1.0
     if not slowest > 1e-12:
         slowest = fastest
         notes.append("a closed-loop pole lies on the imaginary axis at nominal values")
     duration = float(duration or table.duration or 20.0 / slowest)
-    T = float(sample_time or table.sample_time or 0.02 / fastest)
-    if duration / T > MAX_SAMPLES:
+    if sampled:  # the design fixes the period
+        T = float(probe.T)
+        if sample_time and abs(sample_time - T) > 1e-12 * T:
+            raise ModelError(f"the design is sampled at {T:g} s; --sample-time {sample_time:g} does not apply")
+    else:
+        T = float(sample_time or table.sample_time or 0.02 / fastest)
+    if duration / T > MAX_SAMPLES and not sampled:
         T = duration / MAX_SAMPLES
         notes.append(f"sample period raised to {T:.3g} s to keep {MAX_SAMPLES} samples per run")
     outputs = tuple(model.outputs) if model.C is not None and model.C.rows else tuple(model.states)
     measures_outputs = design.estimator is not None
     measured = outputs if measures_outputs else tuple(model.states)
-    chosen = tuple(scenarios) if scenarios else (table.scenarios or (_default_scenario(design),))
+    chosen = tuple(scenarios) if scenarios else table.scenarios
+    if not chosen:
+        limits_now = tuple(getattr(probe, k, None) for k in ("u_min", "u_max"))
+        chosen = (_default_scenario(design, PlantSpec.from_model(model).at(nominal, nominal), limits_now),)
     cases = []
     for k, sc in enumerate(chosen):
         w = f"simulation.scenario {sc.name!r}"
@@ -194,16 +242,15 @@ def prepare(design: Design, folder, *, table: SimulationTable | None = None, req
                     else _value(getattr(requirements, key), nominal, symbols, f"requirements.{key}"))
               for key in ("settling_time", "overshoot", "steady_state_error")}
     peak = {k: _value(v, nominal, symbols, f"requirements.peak_input.{k}") for k, v in requirements.peak_input.items()}
-    ranges = {}
-    for name, lim in model.extra.get("input_limits", {}).items():
-        ranges[name] = tuple(None if getattr(lim, k) is None else _value(getattr(lim, k), nominal, symbols,
-                                                                          f"input_limits.{name}.{k}")
-                             for k in ("min", "max"))
+    low, high = (getattr(probe, k, None) for k in ("u_min", "u_max"))  # the limits the controller applies
+    ranges = {name: (float(low[i]) if low is not None else None, float(high[i]) if high is not None else None)
+              for i, name in enumerate(model.inputs)}
     seed = table.seed if seed is None else seed
     pts = mismatch_points(model, corners=table.corners if corners is None else corners,
                           samples=table.points if points is None else points, seed=seed)
     return Setup(model.name, PlantSpec.from_model(model), path, measures_outputs, outputs, tuple(model.inputs),
-                 measured, tuple(cases), tuple(pts), nominal, gains or table.gains, T, duration, limits, peak,
+                 measured, tuple(cases), tuple(pts), nominal, gains or table.gains, None if sampled else T, duration,
+                 limits, peak,
                  ranges, seed, tuple(notes))
 
 

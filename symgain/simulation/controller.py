@@ -24,22 +24,66 @@ from __future__ import annotations
 import importlib.util
 import inspect
 import sys
+from dataclasses import replace
 from pathlib import Path
 
-from ..design import Design
-from ..errors import DesignError
+import sympy as sp
 
-__all__ = ["write_controller_module", "load_controller_module", "new_controller", "controller_keywords"]
+from ..design import Design
+from ..errors import DesignError, Where
+
+__all__ = ["write_controller_module", "load_controller_module", "new_controller", "controller_keywords",
+           "fix_free_gains"]
 
 _MODULES: dict[str, object] = {}  # per process: path -> imported module
 
 
 def write_controller_module(design: Design, folder) -> Path:
-    """Write the emitted Python module of the design into ``folder``; its path."""
-    from ..emit import emit
+    """Write the emitted Python module of the design into ``folder``; its path.
 
+    A design whose target leaves free gains gets them fixed first (``free_gains``, default 0:
+    any value places the poles); other designs without a Controller are refused.
+    """
+    from ..emit import emit
+    from ..emit.controller_python import controller_blocker
+
+    blocker = controller_blocker(design)
+    if blocker is not None:
+        raise DesignError(f"simulate runs the emitted Controller, and there is none: {blocker}",
+                          where=Where(design.model.source))
     (path,) = emit(design, ["python"], folder)
     return path
+
+
+def fix_free_gains(design: Design, values: dict | None = None) -> tuple[Design, dict]:
+    """The design with every free gain replaced by a number (given, else 0), and the values used.
+
+    >>> import sympy as sp
+    >>> from symgain.design import Design, GainDesign
+    >>> k = sp.Symbol("k_21")
+    >>> part = GainDesign("feedback", "K", sp.ImmutableMatrix([[1, k]]), (), free_gains=(k,))
+    >>> fixed, used = fix_free_gains(Design(model=None, feedback=part))
+    >>> fixed.feedback.gain, fixed.feedback.free_gains, used
+    (Matrix([[1, 0]]), (), {'k_21': 0.0})
+    """
+    values = dict(values or {})
+    free = {s for part in design.parts() for s in part.free_gains}
+    if not free:
+        return design, {}
+    used = {str(s): float(values.get(str(s), 0.0)) for s in sorted(free, key=str)}
+    point = {s: sp.Float(used[str(s)]) if used[str(s)] else sp.Integer(0) for s in free}
+
+    def fixed(part):
+        if part is None:
+            return None
+        extra = {k: (sp.ImmutableMatrix(v.xreplace(point)) if isinstance(v, sp.MatrixBase) and k != "gain_symbols"
+                     else v) for k, v in part.extra.items()}
+        valid = tuple(c.xreplace(point) for c in part.valid_when)
+        return replace(part, gain=sp.ImmutableMatrix(part.gain.xreplace(point)), free_gains=(), extra=extra,
+                       valid_when=tuple(c for c in valid if c is not sp.true))
+
+    return replace(design, feedback=fixed(design.feedback), estimator=fixed(design.estimator),
+                   integral=fixed(design.integral), feedforward=fixed(design.feedforward)), used
 
 
 def load_controller_module(path) -> object:
@@ -59,7 +103,8 @@ def load_controller_module(path) -> object:
 
 def controller_keywords(controller_class, values: dict[str, float]) -> dict[str, float]:
     """The keyword arguments the Controller accepts, from parameter values (reserved names mangled)."""
-    accepted = set(inspect.signature(controller_class).parameters) - {"T"}
+    declared = getattr(controller_class, "PARAMETERS", None)
+    accepted = set(declared) if declared is not None else set(inspect.signature(controller_class).parameters) - {"T"}
     out = {}
     for name, value in values.items():
         for candidate in (name, name + "_p", name + "_p_p"):
@@ -70,7 +115,12 @@ def controller_keywords(controller_class, values: dict[str, float]) -> dict[str,
 
 
 def new_controller(path, T: float | None, values: dict[str, float]):
-    """A Controller of the emitted module at ``path`` with sample period T and the given parameter values."""
+    """A Controller of the emitted module at ``path`` with sample period T (None: the design's own)
+    and the given parameter values."""
     cls = load_controller_module(path).Controller
     kwargs = controller_keywords(cls, values)
-    return cls(T, **kwargs) if T is not None else cls(**kwargs)
+    period = getattr(cls, "PERIOD_PARAMETER", None)  # a declared parameter that is the sample period
+    if period is not None and period in kwargs:
+        value = kwargs.pop(period)
+        T = value if T is None else T
+    return cls(T, **kwargs)

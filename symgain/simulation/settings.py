@@ -1,8 +1,9 @@
-"""The model file's simulation tables: scenarios, requirements and actuator limits.
+"""The model file's simulation tables: scenarios and requirements.
 
 ``[simulation]`` sets the run (duration, controller sample period, how many
 mismatch points) and lists scenarios; ``[requirements]`` gives the limits a
-run must meet; ``[input_limits]`` the actuator's range and rate per input.
+run must meet. (The actuator's ``[input_limits]`` belong to the controller:
+:mod:`symgain.sampling_keys`.)
 Every value is a TOML number or an expression in the declared parameters,
 evaluated at their nominal values when the simulation starts.
 
@@ -10,15 +11,12 @@ evaluated at their nominal values when the simulation starts.
 >>> m = sp.Symbol("m", positive=True)
 >>> tables = read_simulation_tables(
 ...     {"simulation": {"duration": 5, "scenario": [{"name": "move", "reference": {"p": 0.5}}]},
-...      "requirements": {"settling_time": 2.0, "peak_input": "4*m"},
-...      "input_limits": {"F": {"min": -40, "max": 40}}},
+...      "requirements": {"settling_time": 2.0, "peak_input": "4*m"}},
 ...     {"m": m}, ("p", "v"), ("F",), ("p",), "cart.toml")
 >>> tables["simulation"].duration, tables["simulation"].scenarios[0].reference
 (5.0, {'p': 1/2})
 >>> tables["requirements"].peak_input
 {'F': 4*m}
->>> tables["input_limits"]["F"]
-InputLimit(min=-40, max=40, rate=None)
 >>> read_simulation_tables({"requirements": {"rise": 1}}, {}, ("p",), ("F",), (), "cart.toml")
 Traceback (most recent call last):
 ...
@@ -34,14 +32,12 @@ import sympy as sp
 from ..errors import ModelError, Where
 from ..expressions import parse_expression
 
-__all__ = ["Scenario", "SimulationTable", "Requirements", "InputLimit", "read_simulation_tables",
-           "GAINS_CHOICES"]
+__all__ = ["Scenario", "SimulationTable", "Requirements", "read_simulation_tables", "GAINS_CHOICES"]
 
 SIMULATION_KEYS = {"duration", "sample_time", "points", "seed", "gains", "corners", "scenario"}
 SCENARIO_KEYS = {"name", "reference", "reference_time", "initial", "disturbance", "disturbance_time",
                  "noise"}
 REQUIREMENT_KEYS = {"settling_time", "overshoot", "steady_state_error", "peak_input"}
-LIMIT_KEYS = {"min", "max", "rate"}
 GAINS_CHOICES = ("nominal", "scheduled")
 
 
@@ -90,15 +86,6 @@ class Requirements:
     def any(self) -> bool:
         return any(v is not None for v in (self.settling_time, self.overshoot, self.steady_state_error)) \
             or bool(self.peak_input)
-
-
-@dataclass(frozen=True)
-class InputLimit:
-    """Actuator range [min, max] and rate limit (units per second) of one input; None where absent."""
-
-    min: Any = None
-    max: Any = None
-    rate: Any = None
 
 
 def _table(value, where: Where, allowed: set[str]) -> dict:
@@ -197,24 +184,12 @@ def _requirements(value, symbols, inputs, where: Where) -> Requirements:
     return Requirements(**kw)
 
 
-def _limits(value, symbols, inputs, where: Where) -> dict[str, InputLimit]:
-    table = _table(value, where, set(inputs))
-    out = {}
-    for name, spec in table.items():
-        lw = where.child(name)
-        spec = _table(spec, lw, LIMIT_KEYS)
-        out[name] = InputLimit(**{k: _expr(v, symbols, lw.child(k)) for k, v in spec.items()})
-    return out
-
-
 def read_simulation_tables(data: dict, symbols: dict, states, inputs, outputs, file: str) -> dict:
-    """``simulation``, ``requirements`` and ``input_limits`` entries for ``Model.extra`` (only those given)."""
+    """``simulation`` and ``requirements`` entries for ``Model.extra`` (only those given)."""
     top = Where(file)
     out: dict[str, Any] = {}
     if "simulation" in data:
         out["simulation"] = _simulation(data["simulation"], symbols, states, inputs, outputs, top.child("simulation"))
     if "requirements" in data:
         out["requirements"] = _requirements(data["requirements"], symbols, inputs, top.child("requirements"))
-    if "input_limits" in data:
-        out["input_limits"] = _limits(data["input_limits"], symbols, inputs, top.child("input_limits"))
     return out

@@ -109,8 +109,8 @@ def format_campaign(campaign, *, every_point: bool = True) -> str:
             out.append(f"    {run.error}" if run.error else format_rows(run.rows, case.duration))
     failed = sum(not r.passed for r in campaign.runs)
     total = len(campaign.runs)
-    out.append(f"{total} runs ({len(setup.cases)} scenarios x {len(setup.points)} points), {failed} failing a "
-               f"requirement; controller gains: {setup.gains}")
+    out.append(f"{total} runs ({len(setup.cases)} scenario{'s' if len(setup.cases) > 1 else ''} x "
+               f"{len(setup.points)} points), {failed} failing a requirement; controller gains: {setup.gains}")
     out.append(worst_text(campaign))
     return "\n".join(out) + "\n"
 
