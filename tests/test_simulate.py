@@ -223,3 +223,78 @@ def test_simulate_command_line_in_a_fresh_process(tmp_path):
                             timeout=600, env={"PYTHONPATH": str(ROOT), "PATH": "/usr/bin:/bin"})
     assert result.returncode in (0, 1), result.stderr
     assert "points per second" in result.stdout
+
+
+LINEAR_STAGE = ROOT / "examples" / "linear_stage.toml"
+
+
+def test_push_leaves_the_offset_of_the_linear_closed_loop_steady_state(tmp_path):
+    # Reference: the steady state of plant + estimator + u = -K x_hat under a constant input
+    # disturbance d, solved with numpy (0 = A_cl z + B_d d), K from the damping/frequency target
+    # (common practice: K = [m wn^2, 2 zeta m wn - c]) and L from scipy.signal.place_poles.
+    from symgain.model_file import load_model
+
+    design = derive(load_model(LINEAR_STAGE))
+    setup = prepare(design, tmp_path, points=0, corners=False,
+                    scenarios=[Scenario("push", disturbance={"F": 20})])
+    (run,) = run_campaign(setup, jobs=1).runs
+    m, c, w = 2.5, 2.0, 60.0
+    A = np.array([[0, 1], [0, -c / m]])
+    B = np.array([[0], [1 / m]])
+    C = np.array([[1.0, 0.0]])
+    K = np.array([[m * w**2, 2 * 0.7 * m * w - c]])
+    L = scipy.signal.place_poles(A.T, C.T, [-4 * w, -5 * w]).gain_matrix.T
+    A_cl = np.block([[A, -B @ K], [L @ C, A - B @ K - L @ C]])
+    steady = np.linalg.solve(A_cl, -np.vstack([B, np.zeros((2, 1))]) * 20.0)
+    error = {r.name: r.value for r in run.rows if r.signal == "x"}["steady_state_error"]
+    assert error == pytest.approx(abs(steady[0, 0]), rel=1e-3)
+    assert abs(steady[0, 0]) > 20.0 / K[0, 0] * 1.2  # the estimator makes it larger than d / k_p
+
+
+def test_runs_that_do_not_settle_are_the_unstable_points(tmp_path):
+    # Reference: numpy's eigenvalues of A(true) - B(true) K(nominal) at each sampled point.
+    from symgain.model_file import load_model
+    from symgain.simulation.plant import PlantSpec
+
+    design = derive(load_model(ROOT / "examples" / "quarter_car_suspension.toml"))
+    setup = prepare(design, tmp_path, points=6, corners=False)
+    campaign = run_campaign(setup, jobs=1)
+    probe_K, checked = None, set()
+    for run in campaign.runs:
+        point = setup.points[run.point]
+        plant = PlantSpec.from_model(design.model).at(point.values, setup.nominal)
+        if probe_K is None:
+            from symgain.simulation.controller import new_controller
+            probe_K = new_controller(setup.module_path, setup.T, setup.nominal).K
+        growth = np.max(np.linalg.eigvals(plant.A - plant.B @ probe_K).real)
+        settles = [r for r in run.rows if r.name == "settles"][0].passed
+        if growth >= 0:
+            assert not settles, (point.label, growth)
+            checked.add(False)
+        elif 6.0 / -growth < setup.duration:  # stable and fast enough to settle within the run
+            assert settles, (point.label, growth)
+            checked.add(True)
+    assert checked == {True, False}  # the sample holds both kinds
+
+
+def test_sampled_design_follows_its_own_discrete_recursion(tmp_path):
+    # Reference: scipy.signal.cont2discrete (zero-order hold) and the recursion
+    # x[k+1] = (Phi - Gamma K) x[k] of the sampled state feedback, with the emitted K.
+    text = (ROOT / "examples" / "sampled_stage.toml").read_text()
+    text = text.replace("[estimator]\npoles = [\"-4*w\", \"-5*w\"]\n", "").replace("[feedforward]\n", "")
+    design = derive(model_from_text(text, "sampled.toml"))
+    setup = prepare(design, tmp_path, points=0, corners=False, duration=0.2,
+                    scenarios=[Scenario("offset", initial={"x": 0.01})])
+    (run,) = run_campaign(setup, jobs=1).runs
+    from symgain.simulation.controller import new_controller
+
+    ctl = new_controller(setup.module_path, None, setup.nominal)
+    T = 0.002
+    m, c = 4.0, 3.0
+    Phi, Gamma, *_ = scipy.signal.cont2discrete((np.array([[0, 1], [0, -c / m]]), np.array([[0], [1 / m]]),
+                                                 np.eye(2), np.zeros((2, 1))), T, method="zoh")
+    x = np.array([0.01, 0.0])
+    for k in range(50):
+        assert np.allclose(run.trace.x[k], x, atol=1e-12, rtol=1e-9), k
+        x = (Phi - Gamma @ ctl.K) @ x
+    assert setup.cases[0].T == pytest.approx(T)
