@@ -298,3 +298,23 @@ def test_sampled_design_follows_its_own_discrete_recursion(tmp_path):
         assert np.allclose(run.trace.x[k], x, atol=1e-12, rtol=1e-9), k
         x = (Phi - Gamma @ ctl.K) @ x
     assert setup.cases[0].T == pytest.approx(T)
+
+
+def test_latex_report_carries_the_simulation_section(tmp_path, capsys):
+    import shutil
+
+    path = _write(tmp_path, DOUBLE_INTEGRATOR.format(target='damping = "0.5"\nnatural_frequency = "2"', extra="")
+                  + '[simulation]\npoints = 0\n[[simulation.scenario]]\nname = "unit move"\nreference = { p = 1 }\n'
+                  + '[requirements]\novershoot = 0.05\n')
+    out = tmp_path / "report"
+    assert main(["emit", path, "--to", "latex", "--with-simulation", "-o", str(out)]) == 0
+    tex = (out / "slide.tex").read_text()
+    assert r"\section{Closed-loop simulation}" in tex and r"\includegraphics" in tex
+    assert r"\textbf{FAIL}" in tex  # 16 % overshoot against 5 %
+    assert (out / "slide-simulation-1.png").is_file()
+    assert main(["emit", path, "--to", "c", "--with-simulation", "-o", str(out)]) == 2
+    if shutil.which("pdflatex") is None:
+        pytest.skip("pdflatex not installed (Debian: apt-get install texlive-latex-base)")
+    result = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-halt-on-error", "slide.tex"], cwd=out,
+                            capture_output=True, text=True, timeout=120)
+    assert result.returncode == 0, result.stdout[-2000:]

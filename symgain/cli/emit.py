@@ -5,12 +5,14 @@ import argparse
 
 from ..design import derive
 from ..emit import TARGETS, emit
+from ..errors import ModelError
 from ..model_file import load_model
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
   symgain emit examples/greenhouse_cart.toml --to c --precision single --name cart
   symgain emit examples/greenhouse_cart.toml --to latex -o report
+  symgain emit examples/linear_stage.toml --to latex --with-simulation -o report
 
 files: NAME.py (numpy only), NAME.h + NAME.c (C99), NAME.tex (pdflatex), NAME.json;
 NAME is the model's name unless --name is given. Each file is written whole or not at all.
@@ -30,11 +32,22 @@ def add_to(sub) -> None:
                    help="file name, Python module and C prefix (default: the model's name)")
     p.add_argument("--precision", choices=("double", "single"), default="double",
                    help="C floating-point type: double (default) or single (float)")
+    p.add_argument("--with-simulation", action="store_true",
+                   help="add a closed-loop simulation section (figures and pass/fail table) to the LaTeX "
+                   "report, run as 'symgain simulate' would with the model file's settings")
     p.set_defaults(run=run_emit)
 
 
 def run_emit(args) -> int:
     design = derive(load_model(args.model))
-    for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
+    sections, figures = None, []
+    if args.with_simulation:
+        if "latex" not in args.to:
+            raise ModelError("--with-simulation adds a section to the LaTeX report: add --to latex")
+        from ..simulation.latex_section import simulation_for_report
+
+        sections, figures = simulation_for_report(design, args.out, args.name or design.model.name)
+    for path in [*emit(design, args.to, args.out, name=args.name, precision=args.precision,
+                       latex_sections=sections), *figures]:
         print(path)
     return 0
