@@ -116,6 +116,7 @@ class NumericPlant:
         return np.array(self._h(*x_abs, *u_abs, *self.true), dtype=float).reshape(-1)
 
     def _held(self, dt: float):
+        dt = float(f"{dt:.12g}")  # t1 - t0 carries round-off; one matrix exponential per period
         if dt not in self._steps:
             n, m = self.n_states, self.n_inputs
             big = np.zeros((n + m, n + m))
