@@ -46,14 +46,16 @@ def varied_parameters(model) -> list:
     return [p for p in model.parameters if p.role == "plant" and p.range and p.range[0] < p.range[1]]
 
 
-def _label(values: dict, nominal: dict) -> str:
-    diff = [f"{k} = {v:.4g}" for k, v in values.items() if v != nominal.get(k)]
+def _label(values: dict, nominal: dict, units: dict) -> str:
+    diff = [f"{k} = {v:.4g}" + (f" {units[k]}" if units.get(k) else "") for k, v in values.items()
+            if v != nominal.get(k)]
     return ", ".join(diff) if diff else "nominal"
 
 
 def mismatch_points(model, *, corners: bool = True, samples: int = 16, seed: int = 0) -> list[Point]:
     """Nominal first, then the corners, then ``samples`` Latin-hypercube points of the varied ranges."""
     nominal = model.nominal_values()
+    units = {p.name: p.unit for p in model.parameters}
     varied = varied_parameters(model)
     points = [Point("nominal", dict(nominal), "nominal")]
     if not varied:
@@ -61,11 +63,11 @@ def mismatch_points(model, *, corners: bool = True, samples: int = 16, seed: int
     if corners and len(varied) <= MAX_CORNER_PARAMETERS:
         for combo in itertools.product(*[p.range for p in varied]):
             values = dict(nominal, **{p.name: float(v) for p, v in zip(varied, combo)})
-            points.append(Point("corner", values, _label(values, nominal)))
+            points.append(Point("corner", values, _label(values, nominal, units)))
     if samples > 0:
         unit_box = qmc.LatinHypercube(d=len(varied), seed=seed).random(samples)
         lows, highs = [p.range[0] for p in varied], [p.range[1] for p in varied]
         for row in qmc.scale(unit_box, lows, highs):
             values = dict(nominal, **{p.name: float(v) for p, v in zip(varied, row)})
-            points.append(Point("sampled", values, _label(values, nominal)))
+            points.append(Point("sampled", values, _label(values, nominal, units)))
     return points
