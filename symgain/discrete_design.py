@@ -108,7 +108,8 @@ def _relabel(part, target, sampled, symbol: str, estimator: bool = False):
     part = _tidy_part(part)
     valid = tuple(dict.fromkeys((*part.valid_when, *sampled.valid_when)))
     steps = [Step("valid_when", s.title, valid) if s.name == "valid_when" else s for s in steps]
-    steps = [Step("solution", s.title, tidy_trig(sp.Matrix(s.value))) if s.name == "solution" else s for s in steps]
+    steps = [Step("solution", s.title, tidy_trig(sp.Matrix(s.value))) if s.name == "solution" else
+             Step(s.name, s.title, tidy_trig(s.value)) if isinstance(s.value, sp.Expr) else s for s in steps]
     return replace(part, target=target, closed_loop_polynomial=_to_z(part.closed_loop_polynomial),
                    steps=tuple(steps), valid_when=valid, notes=(*target.notes, *part.notes))
 

@@ -60,7 +60,7 @@ def parse(code: str, symbols: dict):
     for sym in expr.free_symbols:
         name = re.sub(r"\\mathit|[\\{}]", "", sym.name)
         digits = re.sub(r"^([A-Za-z]+)_(\d+)$", r"\1\2", name)  # m1 is typeset m_{1}, like m_1
-        mapping[sym] = symbols.get(name, symbols.get(digits, sp.I if name == "i" else sym))
+        mapping[sym] = symbols.get(name, symbols.get(digits, sp.I if name == "i" else sp.E if name == "e" else sym))
     return expr.xreplace(mapping)
 
 
@@ -70,6 +70,8 @@ def expected(design, key: str):
     path = re.sub(r"\[\d+\]", "", key).split(".")
     if path[0] == "plant":
         value = getattr(design.model, path[1])
+    elif path[0] == "sampled":  # the sampled plant of a sampled-data design: Phi, Gamma, valid_when
+        value = getattr(design.sampled, path[1])
     else:
         part = getattr(design, path[0])
         if path[1] == "extra":

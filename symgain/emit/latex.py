@@ -30,6 +30,7 @@ import sympy as sp
 
 from ..check import check_design
 from ..design import GAIN_AXES, Design, GainDesign, Step
+from ..discrete_targets import Z
 from ..sensitivity import sensitivity_table, small_expression
 from .latex_layout import equation_lines, formula_lines, matrix_tex, tex, text
 
@@ -55,7 +56,7 @@ _LHS = {  # left-hand sides of well-known steps
     "input_direction": "f",
     "separation": r"p_{\mathrm{all}}(s)",
 }
-_TUPLE_LABELS = {"augmented_plant": ("A_{a}", "B_{a}")}  # names of matrices given as a tuple
+_TUPLE_LABELS = {"augmented_plant": ("A_{a}", "B_{a}"), "sampled_plant": (r"\Phi", r"\Gamma")}  # names of matrices given as a tuple
 _SIGN = {"positive": "$> 0$", "nonnegative": r"$\geq 0$", "nonzero": r"$\neq 0$", "real": "any real"}
 _PART_TITLES = {"feedback": "State feedback", "estimator": "State estimator",
                 "integral": "Integral action", "feedforward": "Reference feedforward"}
@@ -89,7 +90,8 @@ def _matrix_block(name: str, mat, key: str, entry_names=None) -> list[str]:
         for j in range(mat.cols):
             if mat[i, j] == 0:
                 continue
-            lhs = entry_names[i][j] if entry_names else f"{name}_{{{i + 1},{j + 1}}}"
+            base = f"{{{name}}}" if "_" in name else name  # A_{cl} gets braces before its entry subscript
+            lhs = entry_names[i][j] if entry_names else f"{base}_{{{i + 1},{j + 1}}}"
             rows.append((f"{key}[{i}][{j}]", formula_lines(lhs, mat[i, j])))
     zeros = "" if all(e != 0 for e in mat) else " (entries not listed are zero)"
     head = [f"${name}$ is {mat.rows}$\\times${mat.cols}; its entries{zeros}:"]
@@ -127,6 +129,24 @@ def _plant(design: Design) -> list[str]:
             out += _matrix_block(name, mat, f"plant.{name}")
     for note in model.notes:
         out.append(text(note))
+    return out + _sampled(design)
+
+
+def _sampled(design: Design) -> list[str]:
+    """The discretization step of a sampled-data design: period, hold, Phi and Gamma."""
+    sampled = design.sampled
+    if sampled is None:
+        return []
+    out = [r"\subsection{Sampled plant}",
+           f"The controller runs at the sample period $T = {tex(sampled.period)}$ s; the plant seen at the "
+           r"sampling instants is $x[k+1] = \Phi x[k] + \Gamma u[k]$ (" + text(sampled.method) + ")."]
+    out += [text(note) + "." for note in sampled.notes]
+    for name, mat in ((r"\Phi", sampled.Phi), (r"\Gamma", sampled.Gamma)):
+        out += _matrix_block(name, mat, f"sampled.{name.strip(chr(92))}")
+    if sampled.valid_when:
+        rows = [(f"sampled.valid_when[{k}]", formula_lines(tex(c.lhs), c.rhs, r"\neq"))
+                for k, c in enumerate(sampled.valid_when)]
+        out += ["These formulas hold when:"] + _display(rows)
     return out
 
 
@@ -137,7 +157,8 @@ def _target(part: GainDesign) -> list[str]:
     for note in part.notes:
         out.append(text(note) + ".")
     if part.target.poles:
-        rows = [(f"{part.part}.target_poles[{k}]", [f"s_{{{k + 1}}} &= {tex(p)}"])
+        var = "z" if _in_z(part) else "s"
+        rows = [(f"{part.part}.target_poles[{k}]", [f"{var}_{{{k + 1}}} &= {tex(p)}"])
                 for k, p in enumerate(part.target.poles)]
         out += ["Target poles:"] + _display(rows)
     return out
@@ -150,8 +171,14 @@ def _gain_names(part: GainDesign, mat):
     return [[f"{part.symbol}_{{{i + 1},{j + 1}}}" for j in range(mat.cols)] for i in range(mat.rows)]
 
 
+def _in_z(part: GainDesign) -> bool:
+    """True for the parts of a sampled-data design (polynomials in z)."""
+    return part.target is not None and Z in part.target.polynomial.free_symbols
+
+
 def _step(part: GainDesign, step: Step) -> list[str]:
     key = f"{part.part}.{step.name}"
+    var = "z" if _in_z(part) else "s"
     title = step.title if step.title.startswith("det") else step.title[:1].upper() + step.title[1:]
     out = [r"\subsection{" + text(title) + "}"]
     value = step.value
@@ -169,7 +196,7 @@ def _step(part: GainDesign, step: Step) -> list[str]:
         rows = []
         for k, item in enumerate(value):
             if isinstance(item, sp.Eq):
-                label = f"s^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""
+                label = f"{var}^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""
                 rows.append((f"{key}[{k}]", equation_lines(item.lhs, item.rhs, label)))
             elif isinstance(item, sp.MatrixBase):
                 name = (_TUPLE_LABELS.get(step.name, ()) + (None,) * len(value))[k] \
@@ -185,13 +212,15 @@ def _step(part: GainDesign, step: Step) -> list[str]:
             else:
                 rows.append((f"{key}[{k}]", formula_lines("", item, "")))
         intro = {"coefficient_equations": "Closed-loop coefficient (left) against target coefficient "
-                 "(right), power by power of $s$:",
+                 f"(right), power by power of ${var}$:",
                  "valid_when": "The formulas hold when:"}.get(step.name, "")
         return out + ([intro] if intro else []) + _display(rows)
     if isinstance(value, sp.Eq):
         return out + _display([(key, formula_lines(tex(value.lhs), value.rhs))])
     if isinstance(value, sp.Basic):
         lhs = _LHS.get(step.name, r"\mathrm{value}")
+        if var == "z":
+            lhs = lhs.replace("(s)", "(z)").replace("sI - A", r"zI - \Phi")
         return out + _display([(key, formula_lines(lhs, value))])
     return out + [text(value)]
 
@@ -254,10 +283,14 @@ def _check(design: Design, n_points: int, seed: int) -> list[str]:
            "unique) and with the target polynomial (closed-loop error: coefficients of the numeric "
            f"closed loop against the target's, with $s$ scaled by the size of the target roots). "
            f"Tolerance {report.tolerance:g}."]
+    if design.sampled is not None:
+        out.append("Sampled-data design: the sampled plant's gain-error column holds the relative difference "
+                   r"of $\Phi$, $\Gamma$ from \texttt{scipy.signal.cont2discrete}; gains are compared on "
+                   "scipy's sampled plant and the closed-loop polynomials are in $z$.")
     for part, points in report.points.items():
         cols = "r" * (len(names) + 3) + "l"
         size = r"\footnotesize" if len(names) > 5 else r"\small"
-        out += [r"\subsection{" + text(part.capitalize()) + "}", "{" + size,
+        out += [r"\subsection{" + text(part.capitalize().replace("_", " ")) + "}", "{" + size,
                 r"\begin{center}", r"\begin{tabular}{" + cols + "}", r"\hline",
                 "point & " + " & ".join(f"${tex(p.symbol)}$" for p in names)
                 + r" & gain error & closed-loop error & result \\ \hline"]
