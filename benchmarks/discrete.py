@@ -18,7 +18,7 @@ sys.path.insert(0, str(ROOT))
 
 from symgain.design import derive  # noqa: E402
 from symgain.emit import emit  # noqa: E402
-from symgain.model_file import load_model  # noqa: E402
+from symgain.model import load_model  # noqa: E402
 
 STEPS = 200_000
 

@@ -13,8 +13,8 @@ import tempfile
 from pathlib import Path
 
 from symgain.design import derive
-from symgain.model_file import load_model
-from symgain.simulation.campaign import prepare, run_campaign
+from symgain.model.toml_file import load_model
+from symgain.analysis.simulation.campaign import prepare, run_campaign
 
 ROOT = Path(__file__).resolve().parent.parent
 DEFAULT = [ROOT / "examples" / n for n in ("greenhouse_cart.toml", "linear_stage.toml", "drone_altitude.toml")]

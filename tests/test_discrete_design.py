@@ -14,15 +14,15 @@ import pytest
 import scipy.signal
 import sympy as sp
 
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.design import derive, design_gain
-from symgain.discrete_design import z_spec
-from symgain.discrete_targets import Z
+from symgain.design.sampled import z_spec
+from symgain.design.discrete_targets import Z
 from symgain.errors import ModelError
 from symgain.model import S, Model, Parameter, TargetSpec
-from symgain.model_file import load_model, model_from_text
-from symgain.placement import ackermann
-from symgain.sampling_keys import Sampling
+from symgain.model import load_model, model_from_text
+from symgain.design.placement import ackermann
+from symgain.model.sampling_keys import Sampling
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
 SAMPLED = [p for p in sorted(EXAMPLES.glob("*.toml")) if "[discrete]" in p.read_text()]

@@ -9,7 +9,7 @@ import pytest
 import scipy.signal
 import sympy as sp
 
-from symgain.discretize import exp_times, sampled_plant
+from symgain.design.discretize import exp_times, sampled_plant
 from symgain.errors import DesignError
 
 T = sp.Symbol("T", positive=True)

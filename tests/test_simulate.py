@@ -19,11 +19,11 @@ import scipy.special
 
 from symgain.cli import main
 from symgain.design import derive
-from symgain.model_file import model_from_text
-from symgain.simulation.campaign import prepare, run_campaign
-from symgain.simulation.metrics import output_metrics
-from symgain.simulation.plant import PlantSpec
-from symgain.simulation.settings import Scenario
+from symgain.model.toml_file import model_from_text
+from symgain.analysis.simulation.campaign import prepare, run_campaign
+from symgain.analysis.simulation.metrics import output_metrics
+from symgain.analysis.simulation.plant import PlantSpec
+from symgain.model.simulation_keys import Scenario
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = sorted((ROOT / "examples").glob("*.toml"))
@@ -232,7 +232,7 @@ def test_push_leaves_the_offset_of_the_linear_closed_loop_steady_state(tmp_path)
     # Reference: the steady state of plant + estimator + u = -K x_hat under a constant input
     # disturbance d, solved with numpy (0 = A_cl z + B_d d), K from the damping/frequency target
     # (common practice: K = [m wn^2, 2 zeta m wn - c]) and L from scipy.signal.place_poles.
-    from symgain.model_file import load_model
+    from symgain.model.toml_file import load_model
 
     design = derive(load_model(LINEAR_STAGE))
     setup = prepare(design, tmp_path, points=0, corners=False,
@@ -253,8 +253,8 @@ def test_push_leaves_the_offset_of_the_linear_closed_loop_steady_state(tmp_path)
 
 def test_runs_that_do_not_settle_are_the_unstable_points(tmp_path):
     # Reference: numpy's eigenvalues of A(true) - B(true) K(nominal) at each sampled point.
-    from symgain.model_file import load_model
-    from symgain.simulation.plant import PlantSpec
+    from symgain.model.toml_file import load_model
+    from symgain.analysis.simulation.plant import PlantSpec
 
     design = derive(load_model(ROOT / "examples" / "quarter_car_suspension.toml"))
     setup = prepare(design, tmp_path, points=6, corners=False)
@@ -264,7 +264,7 @@ def test_runs_that_do_not_settle_are_the_unstable_points(tmp_path):
         point = setup.points[run.point]
         plant = PlantSpec.from_model(design.model).at(point.values, setup.nominal)
         if probe_K is None:
-            from symgain.simulation.controller import new_controller
+            from symgain.analysis.simulation.controller import new_controller
             probe_K = new_controller(setup.module_path, setup.T, setup.nominal).K
         growth = np.max(np.linalg.eigvals(plant.A - plant.B @ probe_K).real)
         settles = [r for r in run.rows if r.name == "settles"][0].passed
@@ -286,7 +286,7 @@ def test_sampled_design_follows_its_own_discrete_recursion(tmp_path):
     setup = prepare(design, tmp_path, points=0, corners=False, duration=0.2,
                     scenarios=[Scenario("offset", initial={"x": 0.01})])
     (run,) = run_campaign(setup, jobs=1).runs
-    from symgain.simulation.controller import new_controller
+    from symgain.analysis.simulation.controller import new_controller
 
     ctl = new_controller(setup.module_path, None, setup.nominal)
     T = 0.002

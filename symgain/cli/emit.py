@@ -6,7 +6,7 @@ import argparse
 from ..design import derive
 from ..emit import TARGETS, emit
 from ..errors import ModelError
-from ..model_file import load_model
+from ..model.toml_file import load_model
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
@@ -44,7 +44,7 @@ def run_emit(args) -> int:
     if args.with_simulation:
         if "latex" not in args.to:
             raise ModelError("--with-simulation adds a section to the LaTeX report: add --to latex")
-        from ..simulation.latex_section import simulation_for_report
+        from ..analysis.simulation.latex_section import simulation_for_report
 
         sections, figures = simulation_for_report(design, args.out, args.name or design.model.name)
     for path in [*emit(design, args.to, args.out, name=args.name, precision=args.precision,

@@ -8,7 +8,7 @@ import sympy as sp
 
 from ..design import derive
 from ..errors import ModelError
-from ..model_file import load_model
+from ..model.toml_file import load_model
 
 EPILOG = """examples:
   symgain simulate examples/greenhouse_cart.toml
@@ -84,7 +84,7 @@ def _check_numbers(args) -> None:
 
 
 def _scenarios(args, model):
-    from ..simulation.settings import Scenario
+    from ..model.simulation_keys import Scenario
 
     given = [args.reference, args.offset, args.disturbance, args.noise]
     if not any(given):
@@ -104,11 +104,11 @@ def _scenarios(args, model):
 
 
 def run_simulate(args) -> int:
-    from ..plots import png_bytes
-    from ..simulation.campaign import prepare, run_campaign
-    from ..simulation.figures import scenario_figure
-    from ..simulation.tables import campaign_csv, format_campaign
-    from ..sweep.output import default_folder, prepare_folder, write_atomic
+    from ..emit.plots import png_bytes
+    from ..analysis.simulation.campaign import prepare, run_campaign
+    from ..analysis.simulation.figures import scenario_figure
+    from ..analysis.simulation.tables import campaign_csv, format_campaign
+    from ..emit.files import default_folder, prepare_folder, write_atomic
     from .sweep import _progress
 
     _check_numbers(args)

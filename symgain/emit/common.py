@@ -120,4 +120,5 @@ def mangle(name: str, reserved: set[str]) -> str:
     return name
 
 
-PYTHON_RESERVED = set(keyword.kwlist) | set(keyword.softkwlist) | {"numpy", "shape", "out", "_fails"}
+PYTHON_RESERVED = (set(keyword.kwlist) | set(keyword.softkwlist)
+                   | {"numpy", "shape", "out", "_fails", "_bad", "_invalid_mask", "on_invalid"})

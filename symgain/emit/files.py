@@ -25,7 +25,7 @@ from pathlib import Path
 
 from ..errors import OutputError
 
-__all__ = ["write_atomic", "write_files", "prepare_folder"]
+__all__ = ["write_atomic", "write_files", "prepare_folder", "default_folder"]
 
 
 def prepare_folder(folder) -> Path:
@@ -74,3 +74,12 @@ def write_files(folder, texts: dict[str, str]) -> list[Path]:
     """Write every ``name -> text`` into ``folder`` atomically; the paths in the given order."""
     folder = prepare_folder(folder)
     return [write_atomic(folder / name, text) for name, text in texts.items()]
+
+
+def default_folder(model_name: str) -> Path:
+    """``./symgain-out/<model name>``, where commands write when no folder is given.
+
+    >>> default_folder("cart").as_posix()
+    'symgain-out/cart'
+    """
+    return Path("symgain-out") / model_name

@@ -4,21 +4,26 @@ Each function takes the parameters as keyword arguments, accepts floats or
 numpy arrays (broadcast together) and returns an array of shape
 ``(..., rows, cols)``. Before computing, it tests the validity conditions
 (rule in :mod:`symgain.emit.common`) and raises ``ValueError`` naming the
-condition and, for arrays, the first offending index. Shared subexpressions
+condition and, for arrays, the first offending index; with ``on_invalid="nan"``
+it returns NaN gains at the failing points instead (schedules use this: the
+module is the one vectorized evaluator of the project, see
+:mod:`symgain.analysis.evaluate`). Shared subexpressions
 are computed once (``sympy.cse``). Names that are Python keywords get ``_p``
 appended.
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.design import derive
->>> m = Parameter.declare("m", sign="positive", range=(1, 2))
->>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
-...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+>>> b = Parameter.declare("b", sign="real", range=(1, 2))
+>>> model = Model(name="cart", parameters=(b,), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [b.symbol]]),
 ...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
 >>> namespace = {}
 >>> exec(python_module(derive(model)), namespace)
->>> namespace["feedback_gain"](m=[1.0, 2.0]).tolist()
-[[[1.0, 2.0]], [[2.0, 4.0]]]
+>>> namespace["feedback_gain"](b=[1.0, 2.0]).tolist()
+[[[1.0, 2.0]], [[0.5, 1.0]]]
+>>> namespace["feedback_gain"](b=[1.0, 0.0], on_invalid="nan").tolist()  # valid when b != 0
+[[[1.0, 2.0]], [[nan, nan]]]
 """
 from __future__ import annotations
 
@@ -77,20 +82,21 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
     symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
-    body = [f"def {fn.name}(*, {args}):"]
+    body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\"):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
     for a in fn.arguments:
         body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=numpy.float64)")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
-    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails"}
+    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails", "_bad", "on_invalid"}
+    body.append("    _bad = _invalid_mask(on_invalid, shape)")
     if fn.conditions:
         conds = [c.xreplace(rename) for c in fn.conditions]
         for cond, orig in zip(conds, fn.conditions):
             (value,), terms = failure_rule(cond)
             scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
-            body.append(f"    _fails(numpy.abs({printer.doprint(value)}) <= "
+            body.append(f"    _bad = _fails(numpy.abs({printer.doprint(value)}) <= "
                         f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
-                        f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
+                        f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r}, _bad)")
     entries = [e.xreplace(rename) for e in fn.matrix]
     replacements, reduced = shared_subexpressions(entries, avoid)
     rows, cols = fn.shape
@@ -110,19 +116,34 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         body.append(f"    {target} = {printer.doprint(expr)}")
         if index in done:
             body.append(f"    del {', '.join(sorted(done[index]))}")
+    body.append("    if _bad is not None:")
+    body.append("        out[_bad] = numpy.nan")
     body.append("    return out")
     return body
 
 
 _HELPER = '''
-def _fails(bad, shape, function, condition):
-    """Raise ValueError where a validity condition fails (the first offending index)."""
+def _invalid_mask(on_invalid, shape):
+    """None to raise on a failed condition; a mask to collect failures ("nan")."""
+    if on_invalid == "raise":
+        return None
+    if on_invalid == "nan":
+        return numpy.zeros(shape, dtype=bool)
+    raise ValueError(f"on_invalid must be 'raise' or 'nan', not {on_invalid!r}")
+
+
+def _fails(bad, shape, function, condition, mask):
+    """Raise ValueError where a validity condition fails (the first offending index),
+    or, with a mask, add the failing points to it (their gains become NaN)."""
     bad = numpy.broadcast_to(bad, shape)
+    if mask is not None:
+        return mask | bad
     if bad.any():
         if bad.ndim == 0:
             raise ValueError(f"{function}: condition {condition} fails at these parameter values")
         index = tuple(int(i) for i in numpy.argwhere(bad)[0])
         raise ValueError(f"{function}: condition {condition} fails at index {index}")
+    return None
 '''
 
 

@@ -1,0 +1,217 @@
+"""Sampled-data design: gains K(params, T) that place the poles of Phi - Gamma K in z.
+
+The plant is sampled (:mod:`symgain.design.discretize`), each target becomes a monic
+polynomial in z (:mod:`symgain.design.discrete_targets`), and the single-input
+machinery of :mod:`symgain.design.placement` runs unchanged on the pair (Phi,
+Gamma): coefficient matching on det(zI - Phi + Gamma K) and, in the tests,
+Ackermann's formula as the second route. The conditions are those of the
+sampled plant: its controllability determinant det [Gamma, Phi Gamma, ...]
+vanishes at the sample periods where sampling hides a mode (for an
+oscillatory mode of frequency w, at T = pi/w and its multiples: sin(T w) = 0).
+
+Estimator, prediction form: x_hat[k+1] = Phi x_hat + Gamma u + L (y - C x_hat),
+error matrix Phi - L C. Current form: x_bar[k+1] = Phi x_hat[k] + Gamma u[k],
+x_hat = x_bar + L (y - C x_bar), error matrix Phi - L C Phi (placed by duality
+on (Phi^T, (C Phi)^T)). Integral action: q[k+1] = q[k] + T (y - r), the
+augmented pair [[Phi, 0], [T C, I]], [[Gamma], [T D]]. Feedforward: the
+steady state x = Phi x + Gamma (N r - K x) gives N = (C (I - Phi + Gamma K)^-1 Gamma)^-1.
+
+>>> import sympy as sp
+>>> from symgain.model import Model, Parameter, TargetSpec
+>>> from symgain.model.sampling_keys import Sampling
+>>> T = Parameter.declare("T", sign="positive", range=(0.01, 0.1), role="design")
+>>> model = Model(name="cart", parameters=(T,), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1]]),
+...               feedback=TargetSpec("deadbeat", {"deadbeat": True}), sampling=Sampling(T.symbol))
+>>> derive_sampled(model).feedback.gain
+Matrix([[T**(-2), 3/(2*T)]])
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+
+import sympy as sp
+
+from ..errors import DesignError
+from ..model import S, Z, Model, TargetSpec
+from .discrete_targets import resolve_z_target
+from .discretize import sampled_plant
+from .validity import nonzero_conditions
+
+__all__ = ["derive_sampled", "z_spec"]
+
+_TITLES = {  # the sampled-data wording of each step of the continuous machinery
+    "closed_loop_matrix": "closed-loop matrix Phi - Gamma {g}",
+    "open_loop_polynomial": "open-loop characteristic polynomial det(zI - Phi)",
+    "characteristic_polynomial": "det(zI - Phi + Gamma {g})",
+    "target_polynomial": "target polynomial in z",
+    "controllability_determinant": "determinant of the controllability matrix of the sampled plant "
+                                   "[Gamma, Phi Gamma, ...]",
+}
+
+
+def z_spec(spec: TargetSpec, order: int, T: sp.Expr):
+    """(z target, a polynomial TargetSpec in the placement variable) for the machinery in s."""
+    target = resolve_z_target(spec, order, T)
+    keep = {k: v for k, v in spec.values.items() if k in ("pattern", "input_direction", "output_direction")}
+    return target, TargetSpec("polynomial", {"polynomial": target.polynomial.xreplace({Z: S}), **keep},
+                              spec.where)
+
+
+def _to_z(value):
+    if isinstance(value, tuple):
+        return tuple(_to_z(v) for v in value)
+    if isinstance(value, (sp.Basic, sp.MatrixBase)):
+        return value.xreplace({S: Z})
+    return value
+
+
+def tidy_trig(expr):
+    """Even powers of sin(a) as powers of 1 - cos(a)^2, then factored (placement treats sin, cos as independent).
+
+    >>> a = sp.Symbol("a")
+    >>> tidy_trig(sp.sin(a)**2 + sp.cos(a)**2 - 2*sp.cos(a) + 1)
+    -2*(cos(a) - 1)
+    """
+    if isinstance(expr, sp.MatrixBase):
+        return sp.ImmutableMatrix(expr.applyfunc(tidy_trig))
+    if isinstance(expr, sp.Ne):
+        return sp.Ne(tidy_trig(expr.lhs), expr.rhs)
+    if not isinstance(expr, sp.Basic) or not expr.has(sp.sin):
+        return expr
+    out = expr.replace(lambda e: e.is_Pow and isinstance(e.base, sp.sin) and e.exp.is_even,
+                       lambda e: (1 - sp.cos(e.base.args[0])**2) ** (e.exp // 2))
+    return sp.factor(sp.cancel(out))
+
+
+def _tidy_part(part):
+    """Gains, extra matrices and conditions of a part with the trigonometric identity applied."""
+    if not any(isinstance(v, sp.MatrixBase) and v.has(sp.sin) for v in (part.gain, *part.extra.values())):
+        return part
+    valid = nonzero_conditions([tidy_trig(c.lhs - c.rhs) for c in part.valid_when])
+    extra = {k: tidy_trig(v) if k != "gain_symbols" else v for k, v in part.extra.items()}
+    return replace(part, gain=tidy_trig(part.gain), valid_when=valid, extra=extra)
+
+
+def _relabel(part, target, sampled, symbol: str, estimator: bool = False):
+    """The part in z: steps, polynomial and wording, with the target in z and the sampling conditions."""
+    from .result import Step
+
+    steps = []
+    for st in part.steps:
+        title = st.title
+        if st.name in _TITLES and not estimator:
+            title = _TITLES[st.name].format(g=symbol)
+        elif estimator:
+            title = title.replace("sI", "zI").replace("A - L C", "Phi - L C").replace("A^T", "Phi^T")
+        steps.append(Step(st.name, title, _to_z(st.value)))
+    part = _tidy_part(part)
+    valid = tuple(dict.fromkeys((*part.valid_when, *sampled.valid_when)))
+    steps = [Step("valid_when", s.title, valid) if s.name == "valid_when" else s for s in steps]
+    steps = [Step("solution", s.title, tidy_trig(sp.Matrix(s.value))) if s.name == "solution" else
+             Step(s.name, s.title, tidy_trig(s.value)) if isinstance(s.value, sp.Expr) else s for s in steps]
+    return replace(part, target=target, closed_loop_polynomial=_to_z(part.closed_loop_polynomial),
+                   steps=tuple(steps), valid_when=valid, notes=(*target.notes, *part.notes))
+
+
+def _single_or_several(Phi, Gamma, spec, model: Model, part: str, inputs, states, avoid):
+    from .several_inputs import design_several_inputs
+    from .single_input import design_gain
+
+    if Gamma.cols == 1 and "pattern" not in spec.values:
+        return design_gain(Phi, Gamma, spec, part=part, symbol="K", states=states, avoid=avoid)
+    return design_several_inputs(Phi, Gamma, spec, part=part, symbol="K", states=states, inputs=inputs,
+                                 avoid=avoid, symbols=model.symbols)
+
+
+def _integral(model: Model, sampled, avoid, T):
+    from .result import Step
+
+    spec = model.integral
+    if model.C is None or model.n_outputs == 0:
+        raise DesignError("integral action integrates the outputs, but the plant has no outputs", where=spec.where)
+    Phi, Gamma, C = sp.Matrix(sampled.Phi), sp.Matrix(sampled.Gamma), sp.Matrix(model.C)
+    n, m, p = Phi.rows, Gamma.cols, C.rows
+    D = sp.zeros(p, m) if model.D is None else sp.Matrix(model.D)
+    if p > m:
+        raise DesignError(f"integral action on {p} outputs needs at least {p} inputs", where=spec.where)
+    Pa = sp.Matrix.vstack(sp.Matrix.hstack(Phi, sp.zeros(n, p)), sp.Matrix.hstack(T * C, sp.eye(p)))
+    Ga = sp.Matrix.vstack(Gamma, T * D)
+    zconds = ()
+    if p == m:
+        zdet = sp.factor(sp.Matrix.vstack(sp.Matrix.hstack(Phi - sp.eye(n), Gamma),
+                                          sp.Matrix.hstack(C, D)).det(method="berkowitz"))
+        if zdet == 0:
+            raise DesignError("the sampled plant has a zero at z = 1 (det [[Phi - I, Gamma], [C, D]] = 0): it would "
+                              "cancel the integrator", where=spec.where)
+        zconds = nonzero_conditions([tidy_trig(zdet)])
+    target, sspec = z_spec(spec, n + p, T)
+    states = (*model.states, *(f"q_{y}" for y in model.outputs))
+    full = _single_or_several(Pa, Ga, sspec, model, "integral", model.inputs, states, avoid)
+    full = _relabel(full, target, sampled, "K_a")
+    gain = sp.Matrix(full.gain)
+    valid = tuple(dict.fromkeys((*full.valid_when, *zconds)))
+    steps = [Step("augmented_plant", "augmented sampled plant: [[Phi, 0], [T C, I]], [[Gamma], [T D]] "
+                  "(q[k+1] = q[k] + T (y - r))", (sp.ImmutableMatrix(Pa), sp.ImmutableMatrix(Ga)))]
+    steps += [Step("valid_when", st.title, valid) if st.name == "valid_when" else st for st in full.steps]
+    return replace(full, gain=sp.ImmutableMatrix(gain[:, :n]), valid_when=valid, steps=tuple(steps),
+                   notes=("control law u = -K x - Ki q with q[k+1] = q[k] + T (y - r)", *full.notes),
+                   extra={**full.extra, "integral_gain": sp.ImmutableMatrix(gain[:, n:])})
+
+
+def _estimator(model: Model, sampled, avoid, T, feedback):
+    from .estimator import design_estimator
+
+    spec = model.estimator
+    target, sspec = z_spec(spec, model.n_states, T)
+    form = model.sampling.estimator_form
+    if model.C is None:
+        raise DesignError("an estimator needs measurements, but the plant has no outputs", where=spec.where)
+    C = sp.Matrix(model.C) * (sp.Matrix(sampled.Phi) if form == "current" else sp.eye(model.n_states))
+    dual_model = replace(model, A=sampled.Phi, B=sampled.Gamma, C=C, estimator=sspec, sampling=None)
+    part = design_estimator(dual_model, avoid, feedback)
+    part = _relabel(part, target, sampled, "L", estimator=True)
+    if form == "current":
+        note = ("current form: x_bar[k+1] = Phi x_hat[k] + Gamma u[k], x_hat[k] = x_bar[k] + L (y[k] - C x_bar[k]); "
+                "error matrix Phi - L C Phi")
+    else:
+        note = "prediction form: x_hat[k+1] = Phi x_hat[k] + Gamma u[k] + L (y[k] - C x_hat[k])"
+    return replace(part, notes=(note, *part.notes))
+
+
+def derive_sampled(model: Model):
+    """The sampled-data Design of a model with ``sampling``."""
+    from .result import Design, Step
+    from .feedforward import design_feedforward
+
+    sampling = model.sampling
+    T = sampling.period
+    where = None
+    if sampling.compute_delay:
+        raise DesignError("compute_delay = true (one sample of computation delay) is not supported yet")
+    sampled = sampled_plant(model.A, model.B, T, sampling.method, where)
+    avoid = set(model.symbols)
+    step = Step("sampled_plant", f"sampled plant ({sampled.method}): x[k+1] = Phi x[k] + Gamma u[k]",
+                (sampled.Phi, sampled.Gamma))
+    feedback = estimator = integral = feedforward = None
+    if model.feedback is not None:
+        spec = model.feedback
+        if model.pattern is not None and "pattern" not in spec.values:
+            spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
+        target, sspec = z_spec(spec, model.n_states, T)
+        part = _single_or_several(sp.Matrix(sampled.Phi), sp.Matrix(sampled.Gamma), sspec, model, "feedback",
+                                  model.inputs, model.states, avoid)
+        feedback = _relabel(part, target, sampled, "K")
+        feedback = replace(feedback, steps=(step, *feedback.steps))
+    if model.estimator is not None:
+        estimator = _estimator(model, sampled, avoid, T, feedback)
+    if model.integral is not None:
+        integral = _integral(model, sampled, avoid, T)
+        integral = replace(integral, steps=(step, *integral.steps))
+    if model.feedforward:
+        shifted = replace(model, A=sp.Matrix(sampled.Phi) - sp.eye(model.n_states), B=sampled.Gamma, sampling=None)
+        feedforward = design_feedforward(shifted, feedback, integral)
+        feedforward = replace(feedforward, notes=("sampled steady state: the formula with A replaced by Phi - I "
+                                                  "and B by Gamma", *feedforward.notes))
+    return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
+                  feedforward=feedforward, sampled=sampled)

@@ -1,0 +1,277 @@
+"""Placement with several inputs: a structured gain, or one input direction.
+
+Two routes, both reported as a :class:`~symgain.design.GainDesign`:
+
+* **Structured gain** (``pattern``): every ``*`` of the pattern is an unknown
+  gain, every other entry is fixed. Matching the coefficients of
+  det(sI - A + B K) with the target's gives polynomial equations in the
+  unknowns (nonlinear as soon as two rows of K meet in a product). They are
+  solved exactly: linearly when a choice of free gains makes them linear,
+  otherwise through a lexicographic Groebner basis. The answer is stated as
+  it is: a unique gain, a family with named free gains, several branches, or
+  none (a :class:`~symgain.errors.DesignError` that says why).
+* **One input direction** (``input_direction``, the classic route): with
+  u = f v the plant (A, B f) has one input, the single-input formula gives
+  k, and K = f k. When no direction is given the first unit vector (then the
+  all-ones vector) that keeps the plant controllable is chosen and named.
+
+>>> import sympy as sp
+>>> from symgain.model import TargetSpec
+>>> A = sp.Matrix([[0, 1], [0, 0]]); B = sp.Matrix([[1, 0], [0, 1]])
+>>> spec = TargetSpec("poles", {"poles": (-1, -2), "pattern": [["0", "0"], ["*", "*"]]})
+>>> part = design_several_inputs(A, B, spec, part="feedback", symbol="K", states=("p", "v"),
+...                              inputs=("a", "b"), avoid=set())
+>>> part.gain, part.extra["solution_kind"]
+(Matrix([
+[0, 0],
+[2, 3]]), 'unique')
+"""
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+import sympy as sp
+
+from ..errors import DesignError, ModelError, Where
+from ..model.expressions import parse_expression
+from ..model import S, TargetSpec
+from .placement import gain_symbols
+from .targets import resolve_target
+from .validity import nonzero_conditions
+from .result import GainDesign, Step
+from .single_input import design_gain
+
+__all__ = ["parse_pattern", "parse_direction", "StructuredPlacement", "place_structured",
+           "design_several_inputs"]
+
+
+def parse_pattern(raw, shape: tuple[int, int], symbols: dict, where: Where,
+                  row_label: str, col_label: str) -> list[list]:
+    """Pattern entries: ``None`` for a free gain ``"*"``, else the fixed sympy expression.
+
+    >>> parse_pattern([["*", "0"]], (1, 2), {}, Where("f.toml", "feedback.pattern"), "inputs", "states")
+    [[None, 0]]
+    >>> parse_pattern([["*"]], (1, 2), {}, Where("f.toml", "feedback.pattern"), "inputs", "states")
+    Traceback (most recent call last):
+    ...
+    symgain.errors.ModelError: f.toml: feedback.pattern[0]: row 0 has 1 entries, expected 2 (one per state)
+    """
+    rows, cols = shape
+    if not isinstance(raw, (list, tuple)) or not all(isinstance(r, (list, tuple)) for r in raw):
+        raise ModelError(f"pattern must be a list of rows, found {str(raw)[:60]!r}", where=where)
+    if len(raw) != rows:
+        raise ModelError(f"pattern has {len(raw)} rows, expected {rows} (one per {row_label[:-1]})",
+                         where=where)
+    out = []
+    for i, row in enumerate(raw):
+        if len(row) != cols:
+            raise ModelError(f"row {i} has {len(row)} entries, expected {cols} (one per {col_label[:-1]})",
+                             where=where.at(i))
+        out.append([None if isinstance(v, str) and v.strip() == "*"
+                    else v if isinstance(v, sp.Basic) else parse_expression(v, symbols, where=where.at(i, j))
+                    for j, v in enumerate(row)])
+    return out
+
+
+def parse_direction(raw, size: int, symbols: dict, where: Where, label: str) -> sp.Matrix:
+    """A column vector of ``size`` expressions (the direction f of u = f v).
+
+    >>> parse_direction(["1", "-1"], 2, {}, Where(None, "feedback.input_direction"), "inputs")
+    Matrix([
+    [ 1],
+    [-1]])
+    """
+    if not isinstance(raw, (list, tuple)) or len(raw) != size:
+        raise ModelError(f"must list {size} entries (one per {label[:-1]}), found {str(raw)[:60]!r}",
+                         where=where)
+    f = sp.Matrix([v if isinstance(v, sp.Basic) else parse_expression(v, symbols, where=where.at(i))
+                   for i, v in enumerate(raw)])
+    if all(e == 0 for e in f):
+        raise ModelError("the direction is the zero vector", where=where)
+    return f
+
+
+@dataclass(frozen=True)
+class StructuredPlacement:
+    """What coefficient matching on a structured gain produced."""
+
+    gain_symbols: sp.Matrix  # the gain with unknowns as symbols (fixed entries in place)
+    unknowns: tuple[sp.Symbol, ...]
+    closed_loop_polynomial: sp.Expr
+    equations: tuple[sp.Eq, ...]
+    kind: str  # "unique", "family", "branches"
+    branches: tuple[sp.Matrix, ...]  # one gain per branch (free gains left as symbols)
+    free: tuple[sp.Symbol, ...]
+    method: str
+
+
+def _linear_in(eqs, xs) -> bool:
+    try:
+        return all(sp.Poly(e, *xs).total_degree() <= 1 for e in eqs)
+    except sp.PolynomialError:
+        return False
+
+
+def _solve(eqs, unknowns, nfree):
+    """(kind, solutions, free, method); solutions are dicts unknown -> expression."""
+    candidates = [F for k in range(nfree, len(unknowns)) for F in itertools.combinations(unknowns[::-1], k)]
+    for free in candidates:  # a choice of free gains that leaves a linear system
+        rest = [u for u in unknowns if u not in free]
+        if rest and _linear_in(eqs, rest):
+            sol = sp.linsolve(eqs, rest)
+            if sol == sp.EmptySet:
+                break  # inconsistent: let the Groebner basis say so
+            (values,) = tuple(sol)
+            undetermined = set().union(*[v.free_symbols for v in values]) & set(rest)
+            free = tuple(sorted(set(free) | undetermined, key=unknowns.index))
+            return ("family" if free else "unique", [dict(zip(rest, values))], free,
+                    "linear in " + ", ".join(map(str, rest)) +
+                    (f" once {', '.join(map(str, free))} {'is' if len(free) == 1 else 'are'} left free" if free else ""))
+    basis = sp.groebner(eqs, *unknowns, order="lex")
+    if list(basis.exprs) == [1]:
+        raise DesignError("no gain of this pattern reaches the target: the coefficient equations are "
+                          "inconsistent (their Groebner basis is {1}); free more entries of the pattern")
+    for k in range(nfree, len(unknowns)):
+        for free in itertools.combinations(unknowns[::-1], k):
+            rest = [u for u in unknowns if u not in free]
+            sub = sp.groebner(list(basis.exprs), *rest, order="lex") if free else basis
+            if not sub.is_zero_dimensional:
+                continue
+            degree = max(sp.Poly(g, *rest).degree(rest[-1]) for g in sub.exprs)
+            if degree > 2:
+                raise DesignError(f"the gains of this pattern are roots of a polynomial of degree {degree} in "
+                                  f"{rest[-1]} (lexicographic Groebner basis); closed form is not attempted: "
+                                  "change the pattern or give a direction (input_direction, output_direction "
+                                  "for an estimator)")
+            sols = sp.solve(list(sub.exprs), rest, dict=True)
+            if not sols:
+                raise DesignError("no gain of this pattern reaches the target (no solution of the "
+                                  "Groebner basis)")
+            kind = "branches" if len(sols) > 1 else ("family" if free else "unique")
+            return kind, sols, tuple(free), "lexicographic Groebner basis, then back substitution"
+    raise DesignError("could not separate the coefficient equations into free and determined gains")
+
+
+def place_structured(A: sp.Matrix, B: sp.Matrix, pattern: list[list], target: sp.Expr, *,
+                     letter: str = "k", avoid: set[str] = frozenset()) -> StructuredPlacement:
+    """Solve det(sI - A + B K) = target for the free entries (``None``) of ``pattern``.
+
+    >>> A = sp.Matrix([[0, 1], [0, 0]]); B = sp.eye(2)
+    >>> r = place_structured(A, B, [[None, 0], [0, None]], S**2 + 3*S + 2)
+    >>> r.kind, [list(b) for b in r.branches]
+    ('branches', [[1, 0, 0, 2], [2, 0, 0, 1]])
+    """
+    n, m = A.rows, B.cols
+    names = gain_symbols(letter, (m, n), avoid) if m > 1 else gain_symbols(letter, (1, n), avoid)
+    K = sp.Matrix(m, n, lambda i, j: names[i, j] if pattern[i][j] is None else pattern[i][j])
+    unknowns = tuple(names[i, j] for i in range(m) for j in range(n) if pattern[i][j] is None)
+    closed = sp.expand((A - B * K).charpoly(S).as_expr())
+    got = sp.Poly(closed, S).all_coeffs()[1:]
+    want = sp.Poly(target, S).all_coeffs()[1:]
+    equations = tuple(sp.Eq(g, w, evaluate=False) for g, w in zip(got, want))
+    numers = [e for e in (sp.numer(sp.together(g - w)) for g, w in zip(got, want)) if e != 0]
+    if not unknowns:
+        raise DesignError("the pattern has no free gain '*'")
+    if not numers:
+        kind, sols, free, method = "family", [{}], unknowns, "the target holds for every gain"
+    else:
+        kind, sols, free, method = _solve(numers, list(unknowns), max(0, len(unknowns) - len(numers)))
+    branches = tuple(sp.Matrix(K.xreplace({k: sp.factor(v) for k, v in sol.items()})) for sol in sols)
+    return StructuredPlacement(K, unknowns, closed, equations, kind, branches, free, method)
+
+
+def _conditions(gains: sp.Matrix) -> tuple:
+    dens, radicands = [], []
+    for e in gains:
+        dens.append(sp.denom(sp.together(e)))
+        for p in e.atoms(sp.Pow):
+            if p.exp == sp.Rational(1, 2) and not p.base.is_nonnegative:
+                radicands.append(sp.factor(p.base))
+    return nonzero_conditions(dens) + tuple(dict.fromkeys(sp.Ge(r, 0) for r in radicands))
+
+
+def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symbol: str,
+                          states, inputs, avoid: set[str], symbols: dict | None = None,
+                          word: str = "controllable", pattern_shape=None,
+                          transpose_pattern: bool = False):
+    """A GainDesign for A - B K with several inputs (pattern or input direction)."""
+    symbols = symbols or {}
+    n, m = A.rows, B.cols
+    target = resolve_target(spec, n)
+    raw = spec.values.get("pattern")
+    if raw is not None:
+        pw = spec.where.child("pattern")
+        rows, cols = pattern_shape or ((m, "inputs"), (n, "states"))
+        pattern = parse_pattern(raw, (rows[0], cols[0]), symbols, pw, rows[1], cols[1])
+        if transpose_pattern:  # estimator: the pattern of L (states x outputs), placed on the dual
+            pattern = [list(r) for r in zip(*pattern)]
+        try:
+            res = place_structured(A, B, pattern, target.polynomial, letter=symbol.lower(), avoid=avoid)
+        except DesignError as exc:
+            raise DesignError(exc.what if spec.where.key else f"{part}: {exc.what}", where=pw) from None
+        gain = res.branches[0]
+        valid = _conditions(gain)
+        counts = {"unique": "one solution", "family": f"a family with free gain{'s' if len(res.free) > 1 else ''} "
+                  + ", ".join(map(str, res.free)), "branches": f"{len(res.branches)} branches (branch 1 shown)"}
+        notes = (f"structured gain from the pattern: {counts[res.kind]}; solved {res.method}",
+                 *target.notes)
+        steps = (
+            Step("closed_loop_matrix", f"closed-loop matrix A - B {symbol}", sp.Matrix(A - B * res.gain_symbols)),
+            Step("characteristic_polynomial", f"det(sI - A + B {symbol})", res.closed_loop_polynomial),
+            Step("target_polynomial", "target polynomial", target.polynomial),
+            Step("coefficient_equations", "coefficients matched power by power (polynomial equations)",
+                 res.equations),
+            Step("solution", f"gain {symbol}", gain),
+            *([Step("branches", "every solution branch", res.branches)] if len(res.branches) > 1 else []),
+            Step("valid_when", "conditions for the formulas to hold", valid),
+        )
+        return GainDesign(part=part, symbol=symbol, gain=sp.ImmutableMatrix(gain), valid_when=valid,
+                          target=target, closed_loop_polynomial=res.closed_loop_polynomial, steps=steps,
+                          free_gains=tuple(res.free), notes=notes,
+                          extra={"gain_symbols": res.gain_symbols, "solution_kind": res.kind})
+    return _design_by_direction(A, B, spec, target, part=part, symbol=symbol, states=states, inputs=inputs,
+                                avoid=avoid, symbols=symbols, word=word, design_gain=design_gain, Step=Step)
+
+
+def _controllable_somewhere(A: sp.Matrix, b: sp.Matrix) -> bool:
+    n = A.rows
+    ctrb = sp.Matrix.hstack(*[A**i * b for i in range(n)])
+    free = sorted(ctrb.free_symbols, key=str)
+    for trial in range(3):  # generic rank at a few rational points
+        point = {x: sp.Rational(7 + 3 * k + trial * 5, 5 + k + trial) for k, x in enumerate(free)}
+        try:
+            if ctrb.xreplace(point).rank() == n:
+                return True
+        except (ZeroDivisionError, TypeError):
+            continue
+    return False
+
+
+def _design_by_direction(A, B, spec, target, *, part, symbol, states, inputs, avoid, symbols, word,
+                         design_gain, Step):
+    from dataclasses import replace
+
+    m = B.cols
+    key = "output_direction" if word == "observable" else "input_direction"
+    label = "outputs" if word == "observable" else "inputs"
+    raw = spec.values.get(key)
+    if raw is not None:
+        f = parse_direction(raw, m, symbols, spec.where.child(key), label)
+        how = f"{key} {list(f)} given in the model"
+    else:
+        candidates = [sp.Matrix([1 if i == j else 0 for i in range(m)]) for j in range(m)] + [sp.ones(m, 1)]
+        f = next((c for c in candidates if _controllable_somewhere(A, B * c)), None)
+        if f is None:
+            raise DesignError(("" if spec.where.key else f"{part}: ") +
+                              f"no unit {label[:-1]} direction nor their sum makes the plant {word}; "
+                              f"give a pattern or {key}", where=spec.where)
+        how = f"{key} {list(f)} chosen by symgain (the first unit vector, then all ones, that keeps the plant {word})"
+    single = design_gain(A, B * f, spec, part=part, symbol=symbol, states=states, avoid=avoid, word=word)
+    gain = f * single.gain
+    note = f"several {label}: placed through one combination u = f v, {how}; {symbol} = f k"
+    steps = (Step("input_direction", f"direction f of the combination ({key})", f),) + single.steps + (
+        Step("direction_gain", f"{symbol} = f k", gain),)
+    return replace(single, gain=sp.ImmutableMatrix(gain), steps=steps, notes=(note, *single.notes),
+                   extra={**single.extra, "gain_symbols": f * single.extra["gain_symbols"],
+                          "direction": sp.ImmutableMatrix(f), "solution_kind": "direction"})

@@ -1,0 +1,287 @@
+"""Read a model file (TOML, see docs/model-file.md) into a :class:`Model`.
+
+Nothing in the file is evaluated as code: every expression goes through
+:func:`symgain.model.expressions.parse_expression`.
+
+>>> text = '''
+... name = "cart"
+... [parameters]
+... m = { sign = "positive", range = [1, 2] }
+... [plant]
+... states = ["p", "v"]
+... inputs = ["F"]
+... A = [["0", "1"], ["0", "0"]]
+... B = [["0"], ["1/m"]]
+... [feedback]
+... poles = ["-2", "-3"]
+... '''
+>>> model = model_from_text(text, "cart.toml")
+>>> model.B
+Matrix([
+[  0],
+[1/m]])
+>>> model_from_text(text.replace("1/m", "1/q"), "cart.toml")
+Traceback (most recent call last):
+...
+symgain.errors.ExpressionError: cart.toml: plant.B[1][0]: undeclared symbol 'q' in '1/q'
+"""
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Any
+
+import sympy as sp
+
+from ..errors import ModelError, Where
+from .expressions import parse_expression
+from .definition import PROTOTYPE_NAMES, S, Model, Parameter, TargetSpec
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+__all__ = ["load_model", "model_from_text", "parse_matrix", "parse_target"]
+
+TOP_KEYS = {"name", "title", "parameters", "plant", "feedback", "estimator", "integral",
+            "feedforward", "discrete", "input_limits", "notes", "simulation", "requirements"}
+PARAMETER_KEYS = {"meaning", "unit", "sign", "range", "nominal", "role"}
+PLANT_KEYS = {"states", "inputs", "outputs", "A", "B", "C", "D", "equations", "equilibrium",
+              "output_equations"}
+TARGET_KEYS = {
+    "poles": ("poles",),
+    "z_poles": ("z_poles",),
+    "deadbeat": ("deadbeat",),
+    "polynomial": ("polynomial",),
+    "prototype": ("prototype", "bandwidth"),
+    "damping": ("damping", "natural_frequency"),
+    "settling": ("settling_time", "overshoot"),
+}
+OPTIONAL_TARGET_KEYS = {"extra_poles", "pattern", "input_direction", "output_direction"}
+
+
+def load_model(path: str | Path) -> Model:
+    """Read and validate a model file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ModelError("no such model file", where=Where(str(path))) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ModelError(f"cannot read the model file: {exc}", where=Where(str(path))) from None
+    return model_from_text(text, str(path))
+
+
+def _check_keys(table: dict, allowed: set[str], where: Where) -> None:
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        raise ModelError(f"unknown key {unknown[0]!r}; expected one of {', '.join(sorted(allowed))}",
+                         where=where)
+
+
+def _names(value: Any, where: Where) -> tuple[str, ...]:
+    if value is None:
+        return ()
+    if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+        raise ModelError(f"must be a list of names, found {value!r}", where=where)
+    if len(set(value)) != len(value):
+        raise ModelError(f"names repeat in {value!r}", where=where)
+    return tuple(value)
+
+
+def parse_matrix(value: Any, symbols: dict, where: Where) -> sp.Matrix:
+    """A matrix given as a list of rows of expressions (strings or numbers), or a LaTeX string."""
+    if isinstance(value, str):
+        from .latex_matrix import parse_latex_matrix  # LaTeX input lives in its own module
+
+        return parse_latex_matrix(value, symbols, where=where)
+    if not isinstance(value, list) or not value or not all(isinstance(r, list) for r in value):
+        raise ModelError(f"must be a list of rows (lists), found {str(value)[:60]!r}", where=where)
+    width = len(value[0])
+    rows = []
+    for i, row in enumerate(value):
+        if len(row) != width:
+            raise ModelError(f"row {i} has {len(row)} entries but row 0 has {width}", where=where.at(i))
+        rows.append([parse_expression(v, symbols, where=where.at(i, j)) for j, v in enumerate(row)])
+    if width == 0:
+        raise ModelError("rows are empty", where=where)
+    return sp.Matrix(rows)
+
+
+def _expr_list(value: Any, symbols: dict, where: Where, extra=None) -> tuple:
+    if not isinstance(value, list):
+        raise ModelError(f"must be a list, found {value!r}", where=where)
+    return tuple(parse_expression(v, symbols, where=where.at(i), extra=extra) for i, v in enumerate(value))
+
+
+def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
+    """One of the target forms of a [feedback], [estimator] or [integral] table."""
+    if not isinstance(table, dict):
+        raise ModelError("must be a table", where=where)
+    allowed = {k for keys in TARGET_KEYS.values() for k in keys} | OPTIONAL_TARGET_KEYS
+    _check_keys(table, allowed, where)
+    kinds = [kind for kind, keys in TARGET_KEYS.items() if keys[0] in table]
+    if len(kinds) != 1:
+        found = ", ".join(TARGET_KEYS[k][0] for k in kinds) or "none"
+        raise ModelError("give exactly one target (poles, polynomial, prototype, damping, "
+                         f"settling_time, or for discrete designs z_poles or deadbeat), found {found}", where=where)
+    kind = kinds[0]
+    for key in TARGET_KEYS[kind]:
+        if key not in table:
+            raise ModelError(f"'{TARGET_KEYS[kind][0]}' needs '{key}' too", where=where)
+    values: dict[str, Any] = {}
+    if kind in ("poles", "z_poles"):
+        values[kind] = _expr_list(table[kind], symbols, where.child(kind))
+    elif kind == "deadbeat":
+        if table["deadbeat"] is not True:
+            raise ModelError("deadbeat = true is the only form", where=where.child("deadbeat"))
+        values["deadbeat"] = True
+    elif kind == "polynomial":
+        from .definition import Z
+
+        values["polynomial"] = parse_expression(table["polynomial"], symbols, where=where.child("polynomial"),
+                                                extra={"s": S, "z": Z})
+    elif kind == "prototype":
+        if not isinstance(table["prototype"], str):
+            raise ModelError("prototype must be a name", where=where.child("prototype"))
+        values["prototype"] = table["prototype"].lower()
+        values["bandwidth"] = parse_expression(table["bandwidth"], symbols, where=where.child("bandwidth"))
+    else:
+        for key in TARGET_KEYS[kind]:
+            values[key] = parse_expression(table[key], symbols, where=where.child(key))
+    if "extra_poles" in table:
+        if kind not in ("damping", "settling"):
+            raise ModelError("extra_poles goes with damping or settling_time targets", where=where)
+        values["extra_poles"] = _expr_list(table["extra_poles"], symbols, where.child("extra_poles"))
+    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.design.several_inputs
+        if key in table:
+            values[key] = table[key]
+    if kind == "prototype":
+        if values["prototype"] not in PROTOTYPE_NAMES:
+            raise ModelError(f"unknown prototype {table['prototype']!r}; choose one of "
+                             f"{', '.join(PROTOTYPE_NAMES)}", where=where.child("prototype"))
+    return TargetSpec(kind, values, where)
+
+
+def _parameters(table: Any, file: str) -> tuple[Parameter, ...]:
+    where = Where(file, "parameters")
+    if table is None:
+        return ()  # a purely numeric plant needs no parameters
+    if not isinstance(table, dict):
+        raise ModelError("[parameters] must be a table of declarations", where=where)
+    from .expressions import RESERVED_NAMES
+
+    params = []
+    for name, spec in table.items():
+        pw = where.child(name)
+        if name in RESERVED_NAMES:
+            raise ModelError(f"{name!r} is reserved and cannot be a parameter", where=pw)
+        if isinstance(spec, (int, float)) and not isinstance(spec, bool):
+            spec = {"nominal": spec}
+        if not isinstance(spec, dict):
+            raise ModelError(f"must be a table such as {{ sign = \"positive\", range = [1, 2] }}, found {spec!r}",
+                             where=pw)
+        _check_keys(spec, PARAMETER_KEYS, pw)
+        params.append(Parameter.declare(name, where=pw, **spec))
+    return tuple(params)
+
+
+def model_from_text(text: str, file: str = "<model>") -> Model:
+    """Parse TOML text into a validated :class:`Model`."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ModelError(f"TOML syntax error: {exc}", where=Where(file)) from None
+    return model_from_dict(data, file)
+
+
+def model_from_dict(data: dict, file: str = "<model>") -> Model:
+    """Build a :class:`Model` from the parsed TOML tables."""
+    top = Where(file)
+    _check_keys(data, TOP_KEYS, top)
+    if "name" not in data or not isinstance(data["name"], str):
+        raise ModelError("a model needs name = \"identifier\"", where=top.child("name"))
+    params = _parameters(data.get("parameters"), file)
+    symbols = {p.name: p.symbol for p in params}
+    plant = data.get("plant")
+    pw = top.child("plant")
+    if not isinstance(plant, dict):
+        raise ModelError("missing [plant] table", where=pw)
+    _check_keys(plant, PLANT_KEYS, pw)
+    states = _names(plant.get("states"), pw.child("states"))
+    inputs = _names(plant.get("inputs"), pw.child("inputs"))
+    outputs = _names(plant.get("outputs"), pw.child("outputs"))
+    if not states or not inputs:
+        raise ModelError("[plant] needs states = [...] and inputs = [...]", where=pw)
+    notes: tuple[str, ...] = ()
+    extra: dict[str, Any] = {}
+    if "equations" in plant:
+        from .equations import linearize_plant  # equations of motion live in their own module
+
+        lin = linearize_plant(plant, symbols, states, inputs, outputs, where=pw)
+        A, B, C, D = lin.A, lin.B, lin.C, lin.D
+        notes, extra = lin.notes, {"equilibrium": lin.equilibrium, "equations": lin.equations}
+        if lin.output_equations is not None:
+            extra["output_equations"] = lin.output_equations
+    else:
+        for key in ("A", "B"):
+            if key not in plant:
+                raise ModelError(f"[plant] needs {key} (or equations of motion)", where=pw)
+        A = parse_matrix(plant["A"], symbols, pw.child("A"))
+        B = parse_matrix(plant["B"], symbols, pw.child("B"))
+        C = parse_matrix(plant["C"], symbols, pw.child("C")) if "C" in plant else None
+        D = parse_matrix(plant["D"], symbols, pw.child("D")) if "D" in plant else None
+        if C is None and outputs:
+            C = _pick_states(outputs, states, pw.child("outputs"))
+    from .sampling_keys import ANTI_WINDUP_KEYS, read_anti_windup, read_input_limits, read_sampling
+
+    targets = {}
+    for part in ("feedback", "estimator", "integral"):
+        if part in data:
+            table = data[part]
+            if part == "integral" and isinstance(table, dict):
+                targets["anti_windup"] = read_anti_windup(table, symbols, top.child(part))
+                table = {k: v for k, v in table.items() if k not in ANTI_WINDUP_KEYS}
+            targets[part] = parse_target(table, symbols, top.child(part))
+    feedforward = _feedforward(data.get("feedforward"), top.child("feedforward"))
+    if "discrete" in data:
+        targets["sampling"] = read_sampling(data["discrete"], symbols, top.child("discrete"))
+    if "sampling" not in targets:
+        from .sampling_keys import is_z_target
+
+        for part in ("feedback", "estimator", "integral"):
+            if part in targets and is_z_target(targets[part]):
+                raise ModelError("z poles, deadbeat and polynomials in z need a sample period: add [discrete] "
+                                 "sample_time = ...", where=top.child(part))
+    if "input_limits" in data:
+        targets["input_limits"] = read_input_limits(data["input_limits"], inputs, symbols, top.child("input_limits"))
+    from .simulation_keys import read_simulation_tables  # [simulation], [requirements]
+
+    extra.update(read_simulation_tables(data, symbols, states, inputs, outputs, file))
+    title = data.get("title", "")
+    return Model(name=data["name"], title=str(title), parameters=params, states=states, inputs=inputs,
+                 outputs=outputs, A=A, B=B, C=C, D=D, source=file, notes=notes, extra=extra,
+                 feedforward=feedforward, **targets)
+
+
+def _pick_states(outputs, states, where: Where) -> sp.Matrix:
+    """C that measures the named states (outputs given by name, no C matrix)."""
+    rows = []
+    for name in outputs:
+        if name not in states:
+            raise ModelError(f"output {name!r} is not a state; give C or output_equations", where=where)
+        rows.append([1 if s == name else 0 for s in states])
+    return sp.Matrix(rows)
+
+
+def _feedforward(table: Any, where: Where) -> bool:
+    if table is None:
+        return False
+    if not isinstance(table, dict):
+        raise ModelError("must be a table", where=where)
+    _check_keys(table, {"enabled"}, where)
+    enabled = table.get("enabled", True)
+    if not isinstance(enabled, bool):
+        raise ModelError(f"enabled must be true or false, found {enabled!r}", where=where)
+    return enabled
