@@ -63,6 +63,7 @@ def simulate(design, values, T, steps, x0, r, controller=None):
     L = numeric(data["estimator"]["gain"], values) if "estimator" in data else None
     N = numeric(data["feedforward"]["gain"], values) if "feedforward" in data else None
     discrete = design.sampled is not None
+    current = discrete and model.sampling.estimator_form == "current"
     if discrete:  # the controller's model of the plant: the design's Phi, Gamma (scipy's pair runs the plant)
         Pc, Gc = numeric(data["sampled"]["Phi"], values), numeric(data["sampled"]["Gamma"], values)
         assert np.max(np.abs(Pc - ad)) < 1e-8 and np.max(np.abs(Gc - bd)) < 1e-8 * max(1.0, np.max(np.abs(bd)))
@@ -81,6 +82,8 @@ def simulate(design, values, T, steps, x0, r, controller=None):
     for k in range(steps):
         y = C @ x + D @ u_last * 0  # D u enters with the u of this sample below (D = 0 in the examples)
         meas = y if L is not None else x
+        if L is not None and current:  # current form: correct with this sample's y first
+            xh = xh + L @ (y - C @ xh)
         xv = xh if L is not None else x
         uw = -K @ xv
         if integral:
@@ -101,7 +104,9 @@ def simulate(design, values, T, steps, x0, r, controller=None):
                 if not np.any((sat & (uw > u) & (push > 0)) | (sat & (uw < u) & (push < 0))):
                     q = q + T * e
         if L is not None:
-            if discrete:
+            if current:
+                xh = Pc @ xh + Gc @ u
+            elif discrete:
                 xh = Pc @ xh + Gc @ u + L @ (y - C @ xh)
             else:
                 xh = xh + T * (A @ xh + B @ u + L @ (y - C @ xh))

@@ -101,3 +101,27 @@ def test_parameters_checked_and_changed_at_run_time(tmp_path):
     ctl.step([0.001], [0.0])
     ctl.reset()
     assert not ctl.x_hat.any() and not ctl.u_last.any()
+
+
+def test_current_form_estimator(tmp_path):
+    """Current form: x_hat = x_bar + L (y - C x_bar), error matrix Phi - L C Phi (placed, checked, run)."""
+    from pathlib import Path
+
+    from symgain.analysis.check import check_design
+    from symgain.design import derive
+    from symgain.model import model_from_text
+
+    text = (Path(__file__).resolve().parent.parent / "examples" / "sampled_stage.toml").read_text()
+    text = text.replace('method = "zoh"', 'method = "zoh"\nestimator_form = "current"').replace(
+        'name  = "sampled_stage"', 'name  = "stage_current"')
+    design = derive(model_from_text(text))
+    assert any("current form" in note for note in design.estimator.notes)
+    report = check_design(design, n_points=6)  # place_poles on (Phi^T, (C Phi)^T) at sampled points
+    assert report.passed and report.counts("estimator")["ok"] == 6
+    module = _controller_module(design, tmp_path)
+    values = design.model.nominal_values()
+    ctl = module.Controller(T=values["T"])
+    assert ctl.CURRENT_FORM
+    us, ys, uc = simulate(design, values, values["T"], 400, [0.0, 0.0], np.array([0.01]), ctl)
+    assert np.max(np.abs(uc - us)) < 1e-9 * np.max(np.abs(us))
+    assert abs(ys[-1, 0] - 0.01) < 2e-4

@@ -170,12 +170,13 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
 def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list[str]:
     zero = "0.0f" if t == "float" else "0.0"
     s = [sig, "{", f"    {t} x[{n}];", f"    {t} uw[{m}];", "    int i, j;"]
-    if p:
+    if p and (has_I or has_L):
         s.append(f"    {t} e[{p}];")
+    if p and (has_I or has_N):
         s.append(f"    {t} rr[{p}];")
         s.append(f"    for (i = 0; i < {p}; ++i) {{\n        rr[i] = r ? r[i] : {zero};\n    }}")
     else:
-        s.append("    (void)r;")
+        s.append("    (void)r;  /* no integral action or feedforward: the reference is not used */")
     if has_L:
         s.append(f"    {t} xn[{n}];")
     if current:
