@@ -16,7 +16,7 @@ from ..errors import ClosedFormLimitation, SymgainError
 __all__ = ["main", "COMMAND_MODULES"]
 
 # one module per command group; each defines add_to(subparsers)
-COMMAND_MODULES = ["symgain.cli.core", "symgain.cli.emit", "symgain.cli.sweep"]
+COMMAND_MODULES = ["symgain.cli.core", "symgain.cli.emit", "symgain.cli.sweep", "symgain.cli.simulate"]
 
 EPILOG = """examples:
   symgain demo

@@ -10,6 +10,7 @@ EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
   symgain emit examples/greenhouse_cart.toml --to c --precision single --name cart
   symgain emit examples/greenhouse_cart.toml --to latex -o report
+  symgain emit examples/linear_stage.toml --to latex --with-simulation -o report
 
 files: NAME.py (numpy only), NAME.h + NAME.c (C99), NAME.tex (pdflatex), NAME.json;
 NAME is the model's name unless --name is given. Each file is written whole or not at all.
@@ -30,15 +31,27 @@ def add_to(sub) -> None:
     p.add_argument("--precision", choices=("double", "single"), default="double",
                    help="C floating-point type: double (default) or single (float)")
     add_form_option(p)
+    p.add_argument("--with-simulation", action="store_true",
+                   help="add a closed-loop simulation section (figures and pass/fail table) to the LaTeX "
+                   "report, run as 'symgain simulate' would with the model file's settings")
     p.set_defaults(run=run_emit)
 
 
 def run_emit(args) -> int:
     from ..design import derive
     from ..emit import emit
+    from ..errors import ModelError
     from ..model.toml_file import load_model
 
     design = derive(load_model(args.model), form=args.form)
-    for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
+    sections, figures = None, []
+    if args.with_simulation:
+        if "latex" not in args.to:
+            raise ModelError("--with-simulation adds a section to the LaTeX report: add --to latex")
+        from ..analysis.simulation.latex_section import simulation_for_report
+
+        sections, figures = simulation_for_report(design, args.out, args.name or design.model.name)
+    for path in [*emit(design, args.to, args.out, name=args.name, precision=args.precision,
+                       latex_sections=sections), *figures]:
         print(path)
     return 0

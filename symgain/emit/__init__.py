@@ -31,8 +31,9 @@ TARGETS = ("python", "c", "latex", "json")
 _IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
-def render(design: Design, targets, name: str | None = None, precision: str = "double") -> dict[str, str]:
-    """File name -> text for each target (nothing is written)."""
+def render(design: Design, targets, name: str | None = None, precision: str = "double",
+           latex_sections=None) -> dict[str, str]:
+    """File name -> text for each target (nothing is written); ``latex_sections``: extra report sections."""
     name = name or design.model.name
     if not _IDENTIFIER.match(name):
         raise OutputError(f"name {name!r} must be an identifier (it names files, module and C functions)")
@@ -46,7 +47,7 @@ def render(design: Design, targets, name: str | None = None, precision: str = "d
             texts[f"{name}.h"], texts[f"{name}.c"] = c_files(design, name, precision)
         elif target == "latex":
             from .latex import latex_report
-            texts[f"{name}.tex"] = latex_report(design)
+            texts[f"{name}.tex"] = latex_report(design, extra_sections=latex_sections)
         elif target == "json":
             from .json import design_to_json
             texts[f"{name}.json"] = design_to_json(design) + "\n"
@@ -56,7 +57,7 @@ def render(design: Design, targets, name: str | None = None, precision: str = "d
 
 
 def emit(design: Design, targets, out_dir=".", name: str | None = None,
-         precision: str = "double") -> list[Path]:
+         precision: str = "double", latex_sections=None) -> list[Path]:
     """Write the design as the given targets into ``out_dir``; the written paths."""
     from .files import write_files
-    return write_files(out_dir, render(design, targets, name, precision))
+    return write_files(out_dir, render(design, targets, name, precision, latex_sections))

@@ -325,11 +325,16 @@ def _check(design: Design, n_points: int, seed: int) -> list[str]:
     return out
 
 
-def latex_report(design: Design, n_points: int = 10, seed: int = 0) -> str:
-    """The full report as LaTeX source (compiles with pdflatex and texlive-latex-base)."""
+def latex_report(design: Design, n_points: int = 10, seed: int = 0, extra_sections=None) -> str:
+    """The full report as LaTeX source (compiles with pdflatex and texlive-latex-base).
+
+    ``extra_sections``: LaTeX lines to place before the safety caution (for example the
+    simulation section, :mod:`symgain.analysis.simulation.latex_section`); they may include figures.
+    """
     model = design.model
     title = text(model.title or model.name)
-    out = [PREAMBLE, r"\title{Gain design report: " + title + "}",
+    preamble = PREAMBLE + (r"\usepackage{graphicx}" + "\n" if extra_sections else "")
+    out = [preamble, r"\title{Gain design report: " + title + "}",
            r"\author{Model \texttt{" + text(model.name) + r"}, derived in closed form by symgain}",
            r"\date{}", r"\begin{document}", r"\maketitle",
            "This report derives the gains as formulas in the plant's physical parameters, states "
@@ -345,6 +350,7 @@ def latex_report(design: Design, n_points: int = 10, seed: int = 0) -> str:
             out.append("The partial derivatives of a gain in compact form are not listed here; "
                        r"\texttt{symgain derive --json --sensitivity} writes them as definitions.")
     out += _check(design, n_points, seed)
+    out += list(extra_sections or [])
     out += [r"\section{Safety caution}", text(CAUTION),
             r"\section*{Review}", "Reviewed and accepted by: "
             r"\rule{6cm}{0.4pt} \qquad Date: \rule{3cm}{0.4pt}", r"\end{document}"]

@@ -22,6 +22,8 @@ Matrix([
 [g/l, -b/(l**2*m)]])
 >>> lin.B.T, lin.C
 (Matrix([[0, 1/(l**2*m)]]), Matrix([[1, 0]]))
+>>> lin.equations.T   # the nonlinear right-hand sides stay available (for simulation)
+Matrix([[omega, (-b*omega - g*l*m*sin(theta) + tau)/(l**2*m)]])
 >>> theta0 = sp.Symbol("theta0", real=True)
 >>> plant["equilibrium"] = {"theta": "theta0", "omega": "0", "tau": "solve"}
 >>> lin = linearize_plant(plant, {**symbols, "theta0": theta0}, ("theta", "omega"), ("tau",), ())
@@ -53,6 +55,8 @@ class Linearization:
     D: sp.Matrix | None
     notes: tuple[str, ...]
     equilibrium: dict[str, sp.Expr]
+    equations: sp.Matrix | None = None  # the nonlinear right-hand sides f(x, u), in the order of the states
+    output_equations: sp.Matrix | None = None  # h(x, u) when output equations are given
 
 
 def _table(plant: Mapping, key: str, where: Where) -> dict:
@@ -156,10 +160,11 @@ def linearize_plant(plant: Mapping[str, Any], symbols: Mapping[str, sp.Symbol], 
     us = sp.Matrix([variables[n] for n in inputs])
     A = f.jacobian(xs).xreplace(point).applyfunc(_simplify)
     B = f.jacobian(us).xreplace(point).applyfunc(_simplify)
-    C, D = _outputs(plant, symbols, states, inputs, outputs, variables, point, where)
+    C, D, h = _outputs(plant, symbols, states, inputs, outputs, variables, point, where)
     at = ", ".join(f"{n} = {sp.sstr(v)}" for n, v in equilibrium.items())
     notes.insert(0, f"linearized at the equilibrium {at}; states, inputs and outputs are deviations from it")
-    return Linearization(A=A, B=B, C=C, D=D, notes=tuple(notes), equilibrium=equilibrium)
+    return Linearization(A=A, B=B, C=C, D=D, notes=tuple(notes), equilibrium=equilibrium,
+                         equations=sp.ImmutableMatrix(f), output_equations=h)
 
 
 def _show_residuals(states, f, point) -> str:
@@ -213,12 +218,12 @@ def _outputs(plant, symbols, states, inputs, outputs, variables, point, where: W
                        for n in names])
         C = h.jacobian(xs).xreplace(point).applyfunc(_simplify)
         D = h.jacobian(us).xreplace(point).applyfunc(_simplify)
-        return C, (D if any(d != 0 for d in D) else None)
+        return C, (D if any(d != 0 for d in D) else None), sp.ImmutableMatrix(h)
     if not outputs:
-        return None, None
+        return None, None, None
     rows = []
     for name in outputs:
         if name not in states:
             raise ModelError(f"output {name!r} is not a state; give output_equations", where=where.child("outputs"))
         rows.append([1 if s == name else 0 for s in states])
-    return sp.Matrix(rows), None
+    return sp.Matrix(rows), None, None

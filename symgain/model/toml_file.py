@@ -45,7 +45,7 @@ else:  # pragma: no cover
 __all__ = ["load_model", "model_from_text", "parse_matrix", "parse_target"]
 
 TOP_KEYS = {"name", "title", "parameters", "plant", "feedback", "estimator", "integral",
-            "feedforward", "discrete", "input_limits", "notes"}
+            "feedforward", "discrete", "input_limits", "notes", "simulation", "requirements"}
 PARAMETER_KEYS = {"meaning", "unit", "sign", "range", "nominal", "role"}
 PLANT_KEYS = {"states", "inputs", "outputs", "A", "B", "C", "D", "equations", "equilibrium",
               "output_equations"}
@@ -230,7 +230,9 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
 
         lin = linearize_plant(plant, symbols, states, inputs, outputs, where=pw)
         A, B, C, D = lin.A, lin.B, lin.C, lin.D
-        notes, extra = lin.notes, {"equilibrium": lin.equilibrium}
+        notes, extra = lin.notes, {"equilibrium": lin.equilibrium, "equations": lin.equations}
+        if lin.output_equations is not None:
+            extra["output_equations"] = lin.output_equations
     else:
         for key in ("A", "B"):
             if key not in plant:
@@ -263,6 +265,9 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
                                  "sample_time = ...", where=top.child(part))
     if "input_limits" in data:
         targets["input_limits"] = read_input_limits(data["input_limits"], inputs, symbols, top.child("input_limits"))
+    from .simulation_keys import read_simulation_tables  # [simulation], [requirements]
+
+    extra.update(read_simulation_tables(data, symbols, states, inputs, outputs, file))
     title = data.get("title", "")
     return Model(name=data["name"], title=str(title), parameters=params, states=states, inputs=inputs,
                  outputs=outputs, A=A, B=B, C=C, D=D, source=file, notes=notes, extra=extra,

@@ -1,0 +1,1 @@
+"""Closed-loop simulation: scenarios, actuator limits, parameter mismatch and requirements."""
