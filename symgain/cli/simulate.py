@@ -4,11 +4,7 @@ from __future__ import annotations
 import argparse
 import tempfile
 
-import sympy as sp
-
-from ..design import derive
 from ..errors import ModelError
-from ..model.toml_file import load_model
 
 EPILOG = """examples:
   symgain simulate examples/greenhouse_cart.toml
@@ -23,6 +19,8 @@ Exit code 1 when a requirement fails at some point (a loop that does not settle 
 
 
 def _pairs(values, option: str) -> dict:
+    import sympy as sp
+
     out = {}
     for text in values or []:
         name, sep, value = text.partition("=")
@@ -84,6 +82,8 @@ def _check_numbers(args) -> None:
 
 
 def _scenarios(args, model):
+    import sympy as sp
+
     from ..model.simulation_keys import Scenario
 
     given = [args.reference, args.offset, args.disturbance, args.noise]
@@ -104,6 +104,8 @@ def _scenarios(args, model):
 
 
 def run_simulate(args) -> int:
+    from ..design import derive
+    from ..model.toml_file import load_model
     from ..emit.plots import png_bytes
     from ..analysis.simulation.campaign import prepare, run_campaign
     from ..analysis.simulation.figures import scenario_figure
