@@ -16,6 +16,7 @@ import sympy as sp
 
 from .check import CheckReport
 from .design import Design, GainDesign, gain_labels
+from .errors import printable
 from .model import S
 
 __all__ = ["format_design", "format_check", "format_polynomial"]
@@ -76,7 +77,7 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
 def format_design(design: Design) -> str:
     """The gains, targets and conditions, one formula per line."""
     model = design.model
-    head = f"{model.name}" + (f": {model.title}" if model.title else "")
+    head = f"{model.name}" + (f": {printable(model.title, 200)}" if model.title else "")
     lines = [head, f"states {', '.join(model.states)}; inputs {', '.join(model.inputs)}"
              + (f"; outputs {', '.join(model.outputs)}" if model.outputs else "")]
     lines.extend(f"plant: {note}" for note in model.notes)

@@ -26,12 +26,12 @@ where ``|f| <= tol * (1 + |t_1| + ... + |t_k|)`` with ``t_i`` the terms of
 """
 from __future__ import annotations
 
-import keyword
 from dataclasses import dataclass
 
 import sympy as sp
 
 from ..design import Design
+from ..identifiers import PYTHON_KEYWORDS
 
 __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
            "mangle", "TOLERANCE"]
@@ -120,4 +120,4 @@ def mangle(name: str, reserved: set[str]) -> str:
     return name
 
 
-PYTHON_RESERVED = set(keyword.kwlist) | set(keyword.softkwlist) | {"numpy", "shape", "out", "_fails"}
+PYTHON_RESERVED = set(PYTHON_KEYWORDS) | {"numpy", "shape", "out", "_fails"}

@@ -6,7 +6,10 @@ numpy arrays (broadcast together) and returns an array of shape
 (rule in :mod:`symgain.emit.common`) and raises ``ValueError`` naming the
 condition and, for arrays, the first offending index. Shared subexpressions
 are computed once (``sympy.cse``). Names that are Python keywords get ``_p``
-appended.
+appended. Every argument must be a finite number with the declared sign of
+its parameter (``ValueError`` otherwise, naming the argument), and a result
+that is not finite raises ``ValueError`` instead of being returned. User
+text (title, meanings, units) is escaped (:mod:`symgain.emit.escape`).
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -28,6 +31,7 @@ from sympy.printing.numpy import NumPyPrinter
 from ..design import Design
 from .common import (PYTHON_RESERVED, TOLERANCE, Function, design_functions, failure_rule, mangle,
                      shared_subexpressions)
+from .escape import python_text
 
 __all__ = ["python_module", "PythonPrinter"]
 
@@ -48,23 +52,28 @@ def _range_text(rng) -> str:
     return f"[{rng[0]:g}, {rng[1]:g}]" if rng else "no declared range"
 
 
+_SIGN_WORDS = {"positive": "> 0", "nonnegative": ">= 0", "nonzero": "!= 0", "real": "any real"}
+
+
 def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]:
     model = design.model
+    signs = {p.name: p.sign for p in model.parameters}
     rows, cols = fn.shape
-    lines = [f'"""{fn.part.capitalize()} {fn.key.replace("_", " ")} {fn.label} of {model.name}: '
-             f"an array of shape (..., {rows}, {cols}).", ""]
+    lines = [f'"""{fn.part.capitalize()} {python_text(fn.key.replace("_", " "))} {fn.label} of '
+             f"{model.name}: an array of shape (..., {rows}, {cols}).", ""]
     lines.append("Formulas:")
     for i in range(rows):
         for j in range(cols):
-            lines.append(f"    {fn.label}[{i}, {j}] = {sp.sstr(fn.matrix[i, j])}")
+            lines.append(f"    {fn.label}[{i}, {j}] = {python_text(sp.sstr(fn.matrix[i, j]))}")
     lines += ["", "Parameters (keyword only; floats or numpy arrays, broadcast together):"]
     for name, meaning, unit, rng in fn.meanings:
         shown = names[name] + (f" (model name {name})" if names[name] != name else "")
-        unit_text = f" [{unit}]" if unit else ""
-        lines.append(f"    {shown}{unit_text}: {meaning or 'no meaning given'}; range {_range_text(rng)}")
+        unit_text = f" [{python_text(unit)}]" if unit else ""
+        lines.append(f"    {shown}{unit_text}: {python_text(meaning) or 'no meaning given'}; "
+                     f"{_SIGN_WORDS[signs.get(name, 'real')]}, range {_range_text(rng)}")
     lines += ["", "Valid when (otherwise ValueError):"]
     if fn.conditions:
-        lines += [f"    {sp.sstr(c)} != 0" for c in fn.conditions]
+        lines += [f"    {python_text(sp.sstr(c))} != 0" for c in fn.conditions]
         lines.append(f"    (fails where |f| <= {TOLERANCE['double']:g} * (1 + sum of |terms of f|))")
     else:
         lines.append("    always (the declared signs rule out every singular case)")
@@ -79,8 +88,10 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
     args = ", ".join(names[a] for a in fn.arguments)
     body = [f"def {fn.name}(*, {args}):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
+    signs = {p.name: p.sign for p in design.model.parameters}
     for a in fn.arguments:
-        body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=numpy.float64)")
+        body.append(f"    {names[a]} = _argument({names[a]}, {names[a]!r}, {fn.name!r}, "
+                    f"{signs.get(a, 'real')!r})")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
     avoid = set(names.values()) | {"shape", "out", "numpy", "_fails"}
     if fn.conditions:
@@ -110,11 +121,42 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         body.append(f"    {target} = {printer.doprint(expr)}")
         if index in done:
             body.append(f"    del {', '.join(sorted(done[index]))}")
-    body.append("    return out")
+    body.append(f"    return _finite(out, {fn.name!r})")
     return body
 
 
 _HELPER = '''
+_SIGNS = {"positive": (lambda v: v > 0, "positive"), "nonnegative": (lambda v: v >= 0, "nonnegative"),
+          "nonzero": (lambda v: v != 0, "nonzero"), "real": (lambda v: v == v, "real")}
+
+
+def _where(bad):
+    if bad.ndim == 0:
+        return "at these parameter values"
+    return f"at index {tuple(int(i) for i in numpy.argwhere(bad)[0])}"
+
+
+def _argument(value, name, function, sign):
+    """The argument as a float array; ValueError where it is not finite or breaks its declared sign."""
+    if isinstance(value, (str, bytes)):
+        raise TypeError(f"{function}: {name} must be a number or an array of numbers, not text")
+    value = numpy.asarray(value, dtype=numpy.float64)
+    test, word = _SIGNS[sign]
+    with numpy.errstate(invalid="ignore"):
+        bad = ~(numpy.isfinite(value) & test(value))
+    if bad.any():
+        raise ValueError(f"{function}: {name} must be a finite {word} number (declared sign), "
+                         f"fails {_where(bad)}")
+    return value
+
+
+def _finite(out, function):
+    """The result; ValueError where an entry is not a finite number (never returns inf or nan)."""
+    bad = ~numpy.isfinite(out).all(axis=(-2, -1))
+    if bad.any():
+        raise ValueError(f"{function}: the gain is not finite {_where(bad)}")
+    return out
+
 def _fails(bad, shape, function, condition):
     """Raise ValueError where a validity condition fails (the first offending index)."""
     bad = numpy.broadcast_to(bad, shape)
@@ -131,7 +173,8 @@ def python_module(design: Design) -> str:
     model = design.model
     printer = PythonPrinter()
     fns = design_functions(design)
-    head = [f'"""Closed-form gains of {model.name}' + (f": {model.title}" if model.title else "") + ".",
+    head = [f'"""Closed-form gains of {model.name}' + (f": {python_text(model.title)}" if model.title else "")
+            + ".",
             "",
             "Generated by symgain from the model's symbolic design; needs numpy only.",
             "Functions: " + ", ".join(f.name for f in fns) + ".",

@@ -49,7 +49,9 @@ class GridAxis:
 
     @property
     def label(self) -> str:
-        return f"{self.name} [{self.unit}]" if self.unit else self.name
+        from ..emit.escape import csv_text
+
+        return csv_text(f"{self.name} [{self.unit}]" if self.unit else self.name)
 
 
 @dataclass
