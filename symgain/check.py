@@ -19,6 +19,7 @@ symbolic derivation: it is a second opinion, not the same code run twice.
 """
 from __future__ import annotations
 
+import math
 import warnings
 import zlib
 from dataclasses import dataclass, field
@@ -28,7 +29,7 @@ import scipy.signal
 import sympy as sp
 
 from .design import Design, GainDesign
-from .errors import ModelError, Where
+from .errors import DesignError, ModelError, Where, printable
 from .model import S, Model
 from .validity import holds_at
 
@@ -36,6 +37,11 @@ __all__ = ["PointResult", "CheckReport", "sample_points", "check_design", "DEFAU
            "closed_loop_matrix", "augmented_matrices", "steady_state_error"]
 
 DEFAULT_TOLERANCE = 1e-6
+MAX_POINTS = 100_000  # sampled points of one check
+#: The gain is compared with scipy only where the closed loop's eigenvector matrix has a
+#: condition number below this bound divided by machine precision times the tolerance
+#: (beyond it, a correct placement may differ from scipy's gain by more than the tolerance).
+CONDITION_FACTOR = 1e-2
 
 
 @dataclass(frozen=True)
@@ -56,7 +62,9 @@ class CheckReport:
 
     @property
     def passed(self) -> bool:
-        return all(p.status != "fail" for pts in self.points.values() for p in pts)
+        """No point failed and every part had at least one point actually checked."""
+        return all(p.status != "fail" for pts in self.points.values() for p in pts) and all(
+            any(p.status == "ok" for p in pts) for pts in self.points.values())
 
     def counts(self, part: str) -> dict[str, int]:
         out = {"ok": 0, "fail": 0, "skipped": 0}
@@ -152,7 +160,7 @@ def _distinct(roots, rel=1e-3) -> bool:
 
 def _evaluator(model: Model, expr, free=()):
     names = [p.symbol for p in model.parameters] + list(free)
-    return sp.lambdify(names, expr, modules="numpy")
+    return sp.lambdify(names, expr, modules="numpy", dummify=True)
 
 
 def _free_values(free, seed: int, idx: int) -> dict:
@@ -230,19 +238,58 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
                 ref = None
             if ref is not None:
                 gain_err = float(np.max(np.abs(ref - gain)) / max(np.max(np.abs(ref)), 1e-300))
-        bad = cl_err > tol or (gain_err is not None and gain_err > tol)
+        note = ""
+        if gain_err is not None and gain_err > tol:
+            kappa = _eigenvector_condition(closed)
+            if kappa * np.finfo(float).eps > CONDITION_FACTOR * tol:
+                note = f"gain not compared: ill-conditioned placement (eigenvector condition {kappa:.1e})"
+                gain_err = None
+        bad = not cl_err <= tol or (gain_err is not None and gain_err > tol)
         results.append(PointResult(idx, point, "fail" if bad else "ok", gain_err, cl_err,
-                                   f"error above tolerance {tol:g}" if bad else ""))
+                                   f"error above tolerance {tol:g}" if bad else note))
     return results
+
+
+def _eigenvector_condition(closed) -> float:
+    """Condition number of the eigenvector matrix of the closed loop (inf when defective)."""
+    try:
+        _, vectors = np.linalg.eig(closed)
+        return float(np.linalg.cond(vectors))
+    except np.linalg.LinAlgError:
+        return float("inf")
 
 
 def check_design(design: Design, n_points: int = 20, seed: int = 0,
                  tolerance: float = DEFAULT_TOLERANCE) -> CheckReport:
-    """Check every part of a design at ``n_points`` sampled points (nominal first)."""
-    points = sample_points(design.model, n_points, seed)
-    report = CheckReport(tolerance, seed)
+    """Check every part of a design at ``n_points`` sampled points (nominal first).
+
+    A check that would prove nothing is refused (:class:`~symgain.errors.DesignError`
+    or :class:`~symgain.errors.ModelError`): no points, a tolerance that is not a
+    positive finite number, or a part whose every point is skipped.
+    """
+    if not isinstance(design, Design):
+        raise ModelError(f"check_design needs a Design (from derive), found {type(design).__name__}")
+    if isinstance(n_points, bool) or not isinstance(n_points, (int, np.integer)) \
+            or not 1 <= n_points <= MAX_POINTS:
+        raise ModelError(f"points must be a whole number from 1 to {MAX_POINTS}, found "
+                         f"{printable(repr(n_points), 30)}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed < 2**63:
+        raise ModelError(f"seed must be a whole number from 0 to 2**63 - 1, found {printable(repr(seed), 30)}")
+    if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating)) \
+            or not math.isfinite(tolerance) or not tolerance > 0:
+        raise ModelError(f"tolerance must be a positive finite number, found {printable(repr(tolerance), 30)}")
+    from .guard import stage
+
+    stage("numeric check", f"{n_points} points")
+    points = sample_points(design.model, int(n_points), int(seed))
+    report = CheckReport(float(tolerance), int(seed))
     for part in design.parts():
         if part.target is None and part.part != "feedforward":
             continue
-        report.points[part.part] = _check_part(design.model, part, points, tolerance, seed, design.feedback)
+        results = _check_part(design.model, part, points, tolerance, seed, design.feedback)
+        if not any(r.status != "skipped" for r in results):
+            raise DesignError(f"{part.part}: every one of the {len(results)} points was skipped (a validity "
+                              f"condition fails there: {results[0].reason}); nothing was checked",
+                              where=Where(design.model.source))
+        report.points[part.part] = results
     return report

@@ -25,7 +25,7 @@ from typing import Any
 
 import sympy as sp
 
-from .errors import DesignError, NotControllableError
+from .errors import DesignError, NotControllableError, Where
 from .model import Model, S, TargetSpec
 from .placement import place_single_input
 from .targets import Target, resolve_target
@@ -74,6 +74,7 @@ class Design:
     estimator: GainDesign | None = None
     integral: GainDesign | None = None
     feedforward: GainDesign | None = None
+    warnings: tuple[str, ...] = ()  # one line each, for stderr and the JSON result
 
     def parts(self) -> list[GainDesign]:
         """The designed parts, in pipeline order."""
@@ -167,14 +168,23 @@ def design_gain(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part: str, symb
 
 def derive(model: Model) -> Design:
     """Derive every part the model asks for."""
+    if not isinstance(model, Model):
+        from .errors import ModelError
+
+        raise ModelError(f"derive needs a Model (from load_model, Model or model_from_matrices), "
+                         f"found {type(model).__name__}")
     from .estimator import design_estimator
     from .feedforward import design_feedforward
     from .integral_action import design_integral
     from .multi_input import design_several_inputs
 
+    from .guard import stage
+
+    stage("derive", f"{model.n_states} states, {model.n_inputs} inputs, {len(model.parameters)} parameters")
     avoid = set(model.symbols)
     feedback = estimator = integral = feedforward = None
     if model.feedback is not None:
+        stage("derive: feedback gain")
         spec = model.feedback
         if model.pattern is not None and "pattern" not in spec.values:
             spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
@@ -186,10 +196,31 @@ def derive(model: Model) -> Design:
                                              states=model.states, inputs=model.inputs, avoid=avoid,
                                              symbols=model.symbols)
     if model.estimator is not None:
+        stage("derive: estimator gain")
         estimator = design_estimator(model, avoid, feedback)
     if model.integral is not None:
+        stage("derive: integral action")
         integral = design_integral(model, avoid)
     if model.feedforward:
+        stage("derive: reference feedforward")
         feedforward = design_feedforward(model, feedback, integral)
-    return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
-                  feedforward=feedforward)
+    stage("after the derivation")
+    design = Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
+                    feedforward=feedforward)
+    _refuse_infinite(design)
+    from dataclasses import replace
+
+    from .targets import target_warnings
+
+    return replace(design, warnings=tuple(target_warnings(design)))
+
+
+def _refuse_infinite(design: Design) -> None:
+    """A gain that is infinite or undefined for every parameter value is an error, never a result."""
+    for part in design.parts():
+        matrices = [part.gain] + [v for v in part.extra.values() if isinstance(v, sp.MatrixBase)]
+        for mat in matrices:
+            if any(e.has(sp.zoo, sp.oo, -sp.oo, sp.nan) for e in mat):
+                raise DesignError(f"{part.part}: the gain comes out infinite or undefined (a target value "
+                                  "or a plant entry makes a denominator zero)", where=Where(design.model.source))
+

@@ -5,8 +5,8 @@ import argparse
 import time
 from importlib import resources
 
-from ..check import DEFAULT_TOLERANCE, check_design
-from ..design import derive
+from ..check import DEFAULT_TOLERANCE, MAX_POINTS, check_design
+from . import derive_and_warn
 from ..emit.json import design_to_json
 from ..model_file import load_model, model_from_text
 from ..terminal import format_check, format_design
@@ -15,10 +15,13 @@ _FMT = argparse.RawDescriptionHelpFormatter
 
 
 def _add_check_options(p):
-    p.add_argument("--points", type=int, default=20, metavar="N",
-                   help="parameter points to sample, nominal included (default 20)")
-    p.add_argument("--seed", type=int, default=0, help="random seed for the sampled points (default 0)")
-    p.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE,
+    from . import positive_number, whole_number
+
+    p.add_argument("--points", type=whole_number(1, MAX_POINTS), default=20, metavar="N",
+                   help=f"parameter points to sample, nominal included (default 20, at most {MAX_POINTS})")
+    p.add_argument("--seed", type=whole_number(0, 2**32 - 1), default=0,
+                   help="random seed for the sampled points (default 0; 0 to 2^32 - 1)")
+    p.add_argument("--tolerance", type=positive_number, default=DEFAULT_TOLERANCE,
                    help=f"largest accepted relative error (default {DEFAULT_TOLERANCE:g})")
 
 
@@ -47,7 +50,7 @@ def add_to(sub) -> None:
 
 
 def run_derive(args) -> int:
-    design = derive(load_model(args.model))
+    design = derive_and_warn(load_model(args.model))
     print(design_to_json(design) if args.json else format_design(design), end="" if not args.json else "\n")
     return 0
 
@@ -60,7 +63,7 @@ def _print_check(design, args) -> int:
 
 
 def run_check(args) -> int:
-    return _print_check(derive(load_model(args.model)), args)
+    return _print_check(derive_and_warn(load_model(args.model)), args)
 
 
 DEMO_FILE = "demo_conveyor.toml"
@@ -70,7 +73,7 @@ def run_demo(args) -> int:
     text = resources.files("symgain.data").joinpath(DEMO_FILE).read_text(encoding="utf-8")
     start = time.perf_counter()
     model = model_from_text(text, f"<built-in {DEMO_FILE}>")
-    design = derive(model)
+    design = derive_and_warn(model)
     took = time.perf_counter() - start
     print(f"symgain demo: the built-in model '{model.name}' ({model.title}).")
     print(f"Derived the gains in closed form in {took:.2f} s:\n")

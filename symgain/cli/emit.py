@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import argparse
 
-from ..design import derive
+from . import derive_and_warn
 from ..emit import TARGETS, emit
 from ..model_file import load_model
 
@@ -34,7 +34,7 @@ def add_to(sub) -> None:
 
 
 def run_emit(args) -> int:
-    design = derive(load_model(args.model))
+    design = derive_and_warn(load_model(args.model))
     for path in emit(design, args.to, args.out, name=args.name, precision=args.precision):
         print(path)
     return 0

@@ -8,11 +8,14 @@ from contextlib import contextmanager
 import numpy as np
 import sympy as sp
 
-from ..design import derive
+from . import derive_and_warn
 from ..errors import ModelError
+from . import whole_number
 from ..model_file import load_model
 
 _FMT = argparse.RawDescriptionHelpFormatter
+MAX_ROBUST_POINTS = 100_000  # eigenvalue cross-check points of robust
+MAX_MISMATCH = 6  # mismatched parameters of robust (the closed-form conditions grow fast)
 
 
 def _common(p, model_help="model file (TOML)"):
@@ -45,9 +48,10 @@ def add_to(sub) -> None:
     _common(p)
     p.add_argument("--mismatch", nargs="+", metavar="NAME", required=True,
                    help="plant parameters whose true value differs from the one the controller assumes")
-    p.add_argument("--points", type=int, default=300, metavar="N",
-                   help="sampled points for the eigenvalue cross-check (default 300)")
-    p.add_argument("--seed", type=int, default=0, help="random seed of the cross-check (default 0)")
+    p.add_argument("--points", type=whole_number(1, MAX_ROBUST_POINTS), default=300, metavar="N",
+                   help=f"sampled points for the eigenvalue cross-check (default 300, at most {MAX_ROBUST_POINTS})")
+    p.add_argument("--seed", type=whole_number(0, 2**32 - 1), default=0,
+                   help="random seed of the cross-check (default 0; 0 to 2^32 - 1)")
     p.set_defaults(run=run_robust)
 
     p = sub.add_parser("sensitivity", help="partial derivatives of the gains and relative sensitivities",
@@ -94,14 +98,14 @@ def run_schedule(args) -> int:
     from ..plots import png_bytes, schedule_figure
     from ..sweep.evaluate import GainEvaluator
     from ..sweep.lookup_c import interpolation_errors, lookup_table_c, REFINE
-    from ..sweep.output import write_atomic
+    from ..emit.files import write_files
     from ..sweep.schedule import compute_schedule, parse_axis, schedule_csv
 
     model = load_model(args.model)
     axes = [parse_axis(text, model) for text in args.over]
     if len(axes) > 2:
         raise ModelError(f"--over is given {len(axes)} times; a schedule runs over one or two parameters")
-    design = derive(model)
+    design = derive_and_warn(model)
     evaluator = GainEvaluator(design)
     folder = _folder(args, model)
     total = int(np.prod([a.values.size for a in axes]))
@@ -112,9 +116,9 @@ def run_schedule(args) -> int:
         errors = interpolation_errors(schedule, evaluator=evaluator)
         table = schedule_csv(schedule, progress=tick)
         source = lookup_table_c(schedule, errors, progress=tick if len(axes) == 2 else None)
-    written = [write_atomic(folder / f"{base}.csv", table),
-               write_atomic(folder / f"{model.name}_schedule.c", source),
-               write_atomic(folder / f"{base}.png", png_bytes(schedule_figure(schedule)))]
+    figure = png_bytes(schedule_figure(schedule))  # everything rendered before anything is written
+    written = write_files(folder, {f"{base}.csv": table, f"{model.name}_schedule.c": source,
+                                   f"{base}.png": figure})
     invalid = int((~schedule.valid).sum())
     grid = " x ".join(f"{a.name} {a.values[0]:g}..{a.values[-1]:g} ({a.values.size})" for a in axes)
     print(f"schedule of {len(schedule.entries)} gains over {grid}: {schedule.valid.size} points, "
@@ -139,8 +143,12 @@ def run_robust(args) -> int:
     from ..sweep.output import write_atomic
 
     model = load_model(args.model)
-    design = derive(model)
-    analysis = analyze_mismatch(design, list(dict.fromkeys(args.mismatch)))
+    design = derive_and_warn(model)
+    mismatch = list(dict.fromkeys(args.mismatch))
+    if len(mismatch) > MAX_MISMATCH:
+        raise ModelError(f"--mismatch names {len(mismatch)} parameters; at most {MAX_MISMATCH} are analysed "
+                         "at once")
+    analysis = analyze_mismatch(design, mismatch)
     folder = _folder(args, model)
     from ..robust import grid_size
 
@@ -194,7 +202,7 @@ def run_sensitivity(args) -> int:
     from ..sweep.evaluate import gain_entries
 
     model = load_model(args.model)
-    design = derive(model)
+    design = derive_and_warn(model)
     table = sensitivity_table(design)
     rel = relative_sensitivities(design, table=table)
     names = [p.name for p in model.parameters]
@@ -225,7 +233,7 @@ def run_plot(args) -> int:
     if not args.step:
         raise ModelError("choose a figure to draw: --step")
     model = load_model(args.model)
-    design = derive(model)
+    design = derive_and_warn(model)
     folder = _folder(args, model)
     with _progress(len(corner_points(design)), "step responses", args.quiet) as tick:
         runs = step_responses(design, gains=args.gains, progress=tick)

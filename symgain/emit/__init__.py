@@ -16,23 +16,33 @@ output at all.
 """
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
 from ..design import Design
-from ..errors import OutputError
+from ..errors import OutputError, printable
+from ..identifiers import C_KEYWORDS, PYTHON_KEYWORDS, describe_name, is_identifier
 
 __all__ = ["emit", "render", "TARGETS"]
 
 TARGETS = ("python", "c", "latex", "json")
-_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
 def render(design: Design, targets, name: str | None = None, precision: str = "double") -> dict[str, str]:
     """File name -> text for each target (nothing is written)."""
-    name = name or design.model.name
-    if not _IDENTIFIER.match(name):
-        raise OutputError(f"name {name!r} must be an identifier (it names files, module and C functions)")
+    if not isinstance(design, Design):
+        raise OutputError(f"emit needs a Design (from derive), found {type(design).__name__}")
+    name = design.model.name if name is None else name
+    if not is_identifier(name):
+        raise OutputError(f"name {printable(repr(name), 60)} is not a name: {describe_name(name)} "
+                          "(it names files, the Python module and C functions)")
+    if name in PYTHON_KEYWORDS or name in C_KEYWORDS:
+        raise OutputError(f"name {name!r} is a Python or C keyword; choose another with --name")
+    if not isinstance(precision, str) or precision not in ("double", "single"):
+        raise OutputError(f"precision must be 'double' or 'single', found {printable(repr(precision), 40)}")
+    if isinstance(targets, str):
+        targets = [targets]
+    if not isinstance(targets, (list, tuple, set, frozenset)) or not targets:
+        raise OutputError(f"targets must be a list such as ['python', 'c'], found {type(targets).__name__}")
     texts: dict[str, str] = {}
     for target in dict.fromkeys(targets):
         if target == "python":
@@ -48,7 +58,7 @@ def render(design: Design, targets, name: str | None = None, precision: str = "d
             from .json import design_to_json
             texts[f"{name}.json"] = design_to_json(design) + "\n"
         else:
-            raise OutputError(f"unknown target {target!r}; choose from {', '.join(TARGETS)}")
+            raise OutputError(f"unknown target {printable(repr(target), 40)}; choose from {', '.join(TARGETS)}")
     return texts
 
 

@@ -65,6 +65,8 @@ def design_to_dict(design: Design) -> dict:
         out["plant_notes"] = list(model.notes)
     if model.extra.get("equilibrium"):
         out["equilibrium"] = {str(k): sp.sstr(v) for k, v in model.extra["equilibrium"].items()}
+    if design.warnings:
+        out["warnings"] = list(design.warnings)
     sensitivity = sensitivity_matrices(design)
     for part in design.parts():
         out[part.part] = _part(part, sensitivity.get(part.part))

@@ -92,7 +92,7 @@ class GainEvaluator:
         self.names = [p.name for p in model.parameters]
         self.nominal = model.nominal_values()
         args = [p.symbol for p in model.parameters]
-        self._gains = sp.lambdify(args, [e.expr for e in self.entries], modules="numpy", cse=True)
+        self._gains = sp.lambdify(args, [e.expr for e in self.entries], modules="numpy", dummify=True, cse=True)
         self.conditions = list(design.valid_when)
         self.tol = tol
         self._conditions = []
@@ -100,9 +100,9 @@ class GainEvaluator:
             if isinstance(cond, sp.Ne):
                 f = sp.expand(cond.lhs - cond.rhs)
                 terms = list(sp.Add.make_args(f))
-                self._conditions.append(("ne", sp.lambdify(args, [f, *terms], modules="numpy", cse=True)))
+                self._conditions.append(("ne", sp.lambdify(args, [f, *terms], modules="numpy", dummify=True, cse=True)))
             else:
-                self._conditions.append(("rel", sp.lambdify(args, cond, modules="numpy")))
+                self._conditions.append(("rel", sp.lambdify(args, cond, modules="numpy", dummify=True)))
 
     def _args(self, values: dict) -> list:
         unknown = set(values) - set(self.names)
