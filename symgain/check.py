@@ -28,6 +28,8 @@ import numpy as np
 import scipy.signal
 import sympy as sp
 
+from .numeric import lambdify
+
 from .design import Design, GainDesign
 from .errors import DesignError, ModelError, Where, printable
 from .model import S, Model
@@ -160,7 +162,7 @@ def _distinct(roots, rel=1e-3) -> bool:
 
 def _evaluator(model: Model, expr, free=()):
     names = [p.symbol for p in model.parameters] + list(free)
-    return sp.lambdify(names, expr, modules="numpy", dummify=True)
+    return lambdify(names, expr, modules="numpy")
 
 
 def _free_values(free, seed: int, idx: int) -> dict:

@@ -22,6 +22,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import sympy as sp
 
+from .numeric import lambdify
+
 from .design import Design
 from .errors import DesignError, ModelError, Where
 from .model import S
@@ -216,7 +218,7 @@ class _RatioPolys:
         self.funcs = []
         for cond in analysis.conditions:
             coeffs = sp.Poly(sp.expand(cond), r).all_coeffs()
-            self.funcs.append(sp.lambdify(self.symbols, coeffs, modules="numpy", dummify=True))
+            self.funcs.append(lambdify(self.symbols, coeffs, modules="numpy"))
 
     def __call__(self, values: dict[str, float]) -> list[tuple[float, float]]:
         subs = self.analysis.substitutions(values, {})
@@ -306,9 +308,9 @@ class ClosedLoop:
         model = design.model
         self.names = [p.name for p in model.parameters]
         args = [p.symbol for p in model.parameters]
-        self._A = sp.lambdify(args, model.A, modules="numpy", dummify=True)
-        self._B = sp.lambdify(args, model.B, modules="numpy", dummify=True)
-        self._K = sp.lambdify(args, design.feedback.gain, modules="numpy", dummify=True)
+        self._A = lambdify(args, model.A, modules="numpy")
+        self._B = lambdify(args, model.B, modules="numpy")
+        self._K = lambdify(args, design.feedback.gain, modules="numpy")
 
     def __call__(self, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:
         true = [true_values[n] for n in self.names]
@@ -329,7 +331,7 @@ def cross_check(analysis: MismatchAnalysis, n_points: int = 200, seed: int = 0, 
     model = analysis.design.model
     rng = np.random.default_rng(seed)
     names = [p.name for p in model.parameters]
-    funcs = [sp.lambdify(list(analysis.substitutions({n: 0 for n in names}, {}).keys()), c, "numpy", dummify=True)
+    funcs = [lambdify(list(analysis.substitutions({n: 0 for n in names}, {}).keys()), c, "numpy")
              for c in analysis.conditions]
     loop = ClosedLoop(analysis.design)
     counts = {"points": 0, "agree": 0, "disagree": 0, "marginal": 0, "stable": 0}

@@ -95,6 +95,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
+    limit = getattr(sys, "get_int_max_str_digits", lambda: 0)()
+    if 0 < limit < 100_000:  # inputs are bounded by the reader (4000 digits); derived numbers may be longer
+        sys.set_int_max_str_digits(100_000)
     parser = build_parser()
     args = parser.parse_args(argv)
     try:

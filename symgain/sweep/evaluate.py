@@ -29,6 +29,8 @@ from typing import Callable
 import numpy as np
 import sympy as sp
 
+from ..numeric import lambdify
+
 from ..design import Design, gain_labels
 from ..errors import DesignError, ModelError, Where
 
@@ -92,7 +94,7 @@ class GainEvaluator:
         self.names = [p.name for p in model.parameters]
         self.nominal = model.nominal_values()
         args = [p.symbol for p in model.parameters]
-        self._gains = sp.lambdify(args, [e.expr for e in self.entries], modules="numpy", dummify=True, cse=True)
+        self._gains = lambdify(args, [e.expr for e in self.entries], modules="numpy", cse=True)
         self.conditions = list(design.valid_when)
         self.tol = tol
         self._conditions = []
@@ -100,9 +102,9 @@ class GainEvaluator:
             if isinstance(cond, sp.Ne):
                 f = sp.expand(cond.lhs - cond.rhs)
                 terms = list(sp.Add.make_args(f))
-                self._conditions.append(("ne", sp.lambdify(args, [f, *terms], modules="numpy", dummify=True, cse=True)))
+                self._conditions.append(("ne", lambdify(args, [f, *terms], modules="numpy", cse=True)))
             else:
-                self._conditions.append(("rel", sp.lambdify(args, cond, modules="numpy", dummify=True)))
+                self._conditions.append(("rel", lambdify(args, cond, modules="numpy")))
 
     def _args(self, values: dict) -> list:
         unknown = set(values) - set(self.names)
