@@ -172,7 +172,10 @@ def _free_values(free, seed: int, idx: int) -> dict:
 
 
 def _real(x):
-    x = np.array(x, dtype=complex)
+    try:
+        x = np.array(x, dtype=complex)
+    except (TypeError, ValueError, ZeroDivisionError, OverflowError):
+        return None
     if not np.all(np.isfinite(x)) or np.max(np.abs(x.imag), initial=0) > 1e-9 * max(1.0, np.max(np.abs(x))):
         return None
     return x.real
@@ -198,7 +201,7 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
     results = []
     n = model.n_states
     for idx, point in enumerate(points):
-        args = [point[name] for name in order]
+        args = [np.float64(point[name]) for name in order]
         fvals = _free_values(free, seed, idx)
         fargs = args + [fvals[g] for g in free]
         values = {p.symbol: point[p.name] for p in model.parameters} | fvals
@@ -207,10 +210,12 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
             results.append(PointResult(idx, point, "skipped", None, None, "fails " + ", ".join(failed)))
             continue
         with np.errstate(all="ignore"):
-            A = np.array(f_A(*args), dtype=float)
-            B = np.array(f_B(*args), dtype=float)
-            C = np.array(f_C(*args), dtype=float) if f_C else None
-            D = np.array(f_D(*args), dtype=float) if f_D else None
+            plant = [_real(f(*args)) if f else None for f in (f_A, f_B, f_C, f_D)]
+            if any(m is None for m, f in zip(plant, (f_A, f_B, f_C, f_D)) if f):
+                results.append(PointResult(idx, point, "skipped", None, None,
+                                           "the plant matrices are not finite and real here"))
+                continue
+            A, B, C, D = plant
             gain = _real(f_gain(*fargs))
             K = _real(f_K(*fargs)) if f_K else None
         if gain is None or (f_K is not None and K is None):
@@ -290,8 +295,8 @@ def check_design(design: Design, n_points: int = 20, seed: int = 0,
             continue
         results = _check_part(design.model, part, points, tolerance, seed, design.feedback)
         if not any(r.status != "skipped" for r in results):
-            raise DesignError(f"{part.part}: every one of the {len(results)} points was skipped (a validity "
-                              f"condition fails there: {results[0].reason}); nothing was checked",
+            raise DesignError(f"{part.part}: every one of the {len(results)} points was skipped ("
+                              f"{results[0].reason}); nothing was checked",
                               where=Where(design.model.source))
         report.points[part.part] = results
     return report
