@@ -171,6 +171,14 @@ def _free_values(free, seed: int, idx: int) -> dict:
             for g in free}
 
 
+def _value(func, args):
+    """``func(*args)`` as a real array, or None where it is not finite and real (1/0 included)."""
+    try:
+        return _real(func(*args))
+    except (ZeroDivisionError, OverflowError, ValueError, TypeError):
+        return None
+
+
 def _real(x):
     try:
         x = np.array(x, dtype=complex)
@@ -201,7 +209,7 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
     results = []
     n = model.n_states
     for idx, point in enumerate(points):
-        args = [np.float64(point[name]) for name in order]
+        args = [float(point[name]) for name in order]
         fvals = _free_values(free, seed, idx)
         fargs = args + [fvals[g] for g in free]
         values = {p.symbol: point[p.name] for p in model.parameters} | fvals
@@ -210,14 +218,14 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
             results.append(PointResult(idx, point, "skipped", None, None, "fails " + ", ".join(failed)))
             continue
         with np.errstate(all="ignore"):
-            plant = [_real(f(*args)) if f else None for f in (f_A, f_B, f_C, f_D)]
+            plant = [_value(f, args) if f else None for f in (f_A, f_B, f_C, f_D)]
             if any(m is None for m, f in zip(plant, (f_A, f_B, f_C, f_D)) if f):
                 results.append(PointResult(idx, point, "skipped", None, None,
                                            "the plant matrices are not finite and real here"))
                 continue
             A, B, C, D = plant
-            gain = _real(f_gain(*fargs))
-            K = _real(f_K(*fargs)) if f_K else None
+            gain = _value(f_gain, fargs)
+            K = _value(f_K, fargs) if f_K else None
         if gain is None or (f_K is not None and K is None):
             results.append(PointResult(idx, point, "fail", None, None, "gain is not finite and real here"))
             continue

@@ -43,7 +43,7 @@ def hurwitz_determinants(coeffs) -> list[sp.Expr]:
     >>> hurwitz_determinants([1, a, b, c])
     [a, a*b - c, a*b*c - c**2]
     """
-    c = [sp.sympify(x) for x in coeffs]
+    c = [sp.sympify(x, strict=True) for x in coeffs]
     n = len(c) - 1
     def at(k):
         return c[k] if 0 <= k <= n else sp.Integer(0)
@@ -63,7 +63,7 @@ def routh_hurwitz(coeffs) -> list[sp.Expr]:
     >>> routh_hurwitz([a[4], a[3], a[2], a[1], a[0]])[5:]
     [-a1*a4 + a2*a3, -a0*a3**2 - a1**2*a4 + a1*a2*a3]
     """
-    c = [sp.sympify(x) for x in coeffs]
+    c = [sp.sympify(x, strict=True) for x in coeffs]
     n = len(c) - 1
     if n < 1:
         raise DesignError("the Routh-Hurwitz criterion needs a polynomial of degree 1 or more")

@@ -288,3 +288,29 @@ def test_time_limit_names_the_step(tmp_path):
     code, _, err = run_cli(["--time-limit", "0.5", "derive", write(tmp_path, text)])
     assert code == 2 and one_bounded_line(err), err
     assert "time limit of 0.5 s reached in derive" in err and "5 states" in err
+
+
+def test_a_native_abort_ends_in_one_line(tmp_path):
+    """A native library that aborts (as FLINT does when an allocation fails) is reported by the
+    supervising parent: one line naming the step, exit code 2; its own message is not shown."""
+    script = ("import os, sys\nfrom symgain.guard import stage, supervised\n"
+              "def work():\n    stage('derive: feedback gain', '8 states')\n"
+              "    os.write(1, b'FLINT exception (General error):\\n    Unable to allocate memory (1).\\n')\n"
+              "    os.abort()\nsys.exit(supervised(work, 1500))\n")
+    proc = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, cwd=tmp_path,
+                          env={**os.environ, "PYTHONPATH": str(ROOT)})
+    assert proc.returncode == 2
+    assert proc.stdout == ""
+    assert one_bounded_line(proc.stderr), proc.stderr
+    assert "ran out of memory (limit 1500 MB) in derive: feedback gain (8 states)" in proc.stderr
+
+
+def test_supervised_command_keeps_output_and_exit_codes(tmp_path):
+    model = write(tmp_path, cart_text())
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    ok = subprocess.run([sys.executable, "-m", "symgain", "check", str(model)], capture_output=True, text=True,
+                        env=env, cwd=tmp_path)
+    assert ok.returncode == 0 and "check passed" in ok.stdout
+    bad = subprocess.run([sys.executable, "-m", "symgain", "check", str(model), "--points", "0"],
+                         capture_output=True, text=True, env=env, cwd=tmp_path)
+    assert bad.returncode == 2 and one_bounded_line(bad.stderr)

@@ -93,8 +93,21 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def main(argv: list[str] | None = None) -> int:
+def main(argv: list[str] | None = None, supervise: bool | None = None) -> int:
+    """Run the command line; exit code as the module docstring says.
+
+    Called without arguments (the ``symgain`` command), the command runs in a
+    supervised child process (:func:`symgain.guard.supervised`), so that even a
+    native library's abort under the memory limit ends in one line and exit code 2.
+    """
+    if supervise is None:
+        supervise = argv is None
     argv = sys.argv[1:] if argv is None else argv
+    if supervise and "--debug" not in argv and "-h" not in argv and "--help" not in argv:
+        from ..guard import supervised
+
+        memory = _memory_option(argv)
+        return supervised(lambda: main(argv, supervise=False), memory)
     limit = getattr(sys, "get_int_max_str_digits", lambda: 0)()
     if 0 < limit < 100_000:  # inputs are bounded by the reader (4000 digits); derived numbers may be longer
         sys.set_int_max_str_digits(100_000)
@@ -129,6 +142,19 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:  # pragma: no cover
         print("symgain: interrupted", file=sys.stderr)
         return 130
+
+
+def _memory_option(argv: list[str]) -> float:
+    """The --memory-limit value as given (for the supervisor's message), else the default."""
+    for k, arg in enumerate(argv):
+        value = arg.split("=", 1)[1] if arg.startswith("--memory-limit=") else (
+            argv[k + 1] if arg == "--memory-limit" and k + 1 < len(argv) else None)
+        if value is not None:
+            try:
+                return float(value)
+            except ValueError:
+                break
+    return DEFAULT_MEMORY_LIMIT
 
 
 def derive_and_warn(model):

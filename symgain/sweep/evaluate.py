@@ -68,7 +68,7 @@ def gain_entries(design: Design) -> list[GainEntry]:
                 for j in range(mat.cols):
                     ident = re.sub(r"\W", "_", f"{symbol}_{rl[i]}_{cl[j]}")
                     out.append(GainEntry(part.part, symbol, i, j, f"{symbol}[{rl[i]},{cl[j]}]",
-                                         ident, sp.sympify(mat[i, j])))
+                                         ident, sp.sympify(mat[i, j], strict=True)))
     return out
 
 
