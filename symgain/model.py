@@ -206,6 +206,9 @@ class TargetSpec:
         for key, value in self.values.items():
             if key in ("pattern", "input_direction", "output_direction", "prototype"):
                 continue
+            if key in ("poles", "extra_poles", "z_poles") and not isinstance(value, (list, tuple)):
+                raise ModelError(f"{key} must be a list, found {type(value).__name__} {_shown(value)}",
+                                 where=self.where)
             for item in (value if isinstance(value, (list, tuple)) else [value]):
                 if isinstance(item, bool) or not isinstance(item, (str, int, float, sp.Basic)) \
                         or isinstance(item, sp.MatrixBase):

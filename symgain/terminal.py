@@ -111,7 +111,7 @@ def format_check(report: CheckReport, names: list[str]) -> str:
         lines.append(f"  {c['ok']} ok, {c['fail']} failed, {c['skipped']} skipped")
         lines.append("")
     lines.append("gain err: max |K - K_scipy| / max |K_scipy| (scipy.signal.place_poles; '-' where the"
-                 " poles repeat or the gain is not unique)")
+                 " poles repeat, the gain is not unique or the placement is too ill-conditioned to compare)")
     lines.append("closed-loop err: max difference of the characteristic-polynomial coefficients of the"
                  " numeric closed loop from the target's, with s scaled by the size of the target roots")
     return "\n".join(lines) + "\n"

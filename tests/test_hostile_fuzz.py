@@ -139,3 +139,22 @@ def test_command_options(tmp_path_factory, command, options):
     if code == 2 and "usage:" not in err:
         assert one_bounded_line(err), (args, err)
     assert not (folder / MARK).exists()
+
+
+@settings(max_examples=10, deadline=None, suppress_health_check=list(HealthCheck))
+@given(command=st.sampled_from(["robust", "plot"]),
+       options=st.lists(st.tuples(st.sampled_from(["--points", "--seed", "--mismatch", "--gains", "--step"]),
+                                  OPTION_VALUES), max_size=3))
+def test_robust_and_plot_options(tmp_path_factory, command, options):
+    folder = tmp_path_factory.mktemp("cli")
+    model = folder / "m.toml"
+    model.write_text(cart_text(), encoding="utf-8")
+    args = [command, str(model), "--quiet", "-o", str(folder / "out")]
+    args += ["--mismatch", "m"] if command == "robust" else ["--step"]
+    for flag, value in options:
+        args += [flag] if flag == "--step" else [flag, value]
+    code, _, err = run_cli(args, cwd=folder)
+    assert code in (0, 1, 2), (args, code, err)
+    if code == 2:
+        assert one_bounded_line(err), (args, err)
+    assert not (folder / MARK).exists()

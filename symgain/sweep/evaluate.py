@@ -113,7 +113,14 @@ class GainEvaluator:
         args = []
         for name in self.names:
             if name in values:
-                args.append(np.asarray(values[name], dtype=float))
+                value = values[name]
+                if isinstance(value, (str, bytes, bool)):
+                    raise ModelError(f"parameter {name!r} must be a number or an array of numbers, "
+                                     f"found {type(value).__name__}")
+                try:
+                    args.append(np.asarray(value, dtype=float))
+                except (TypeError, ValueError):
+                    raise ModelError(f"parameter {name!r} must be a number or an array of numbers") from None
             elif name in self.nominal:
                 args.append(np.asarray(self.nominal[name], dtype=float))
             else:

@@ -88,6 +88,8 @@ def _number(text: str, where: Where) -> float:
 
 def parse_axis(text: str, model: Model) -> GridAxis:
     """``NAME=LOW:HIGH:COUNT``, ``NAME=LOW:HIGH`` or ``NAME`` (declared range, 11 points)."""
+    if not isinstance(text, str):
+        raise ModelError(f"a grid is text such as 'm=1:2:11', found {type(text).__name__}")
     where = Where(key=f"--over {printable(text, 60)}")
     name, _, spec = text.partition("=")
     name = name.strip()
@@ -112,7 +114,7 @@ def parse_axis(text: str, model: Model) -> GridAxis:
         except ValueError:
             raise ModelError(f"COUNT must be an integer, found {_shown(pieces[2])}", where=where) from None
     if count < 2 or count > MAX_AXIS_POINTS:
-        raise ModelError(f"COUNT must be from 2 to {MAX_AXIS_POINTS}, found {_shown(pieces[2])}", where=where)
+        raise ModelError(f"COUNT must be at least 2 and at most {MAX_AXIS_POINTS}, found {_shown(pieces[2])}", where=where)
     if not low < high:
         raise ModelError(f"LOW must be below HIGH, found {low:g}:{high:g}", where=where)
     values = np.linspace(low, high, count)
