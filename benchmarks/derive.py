@@ -3,7 +3,7 @@
 For N = 1 .. --max-n carriages (2N states, 3N parameters, every target pole
 at -w) this prints how long each route takes to derive the gain K:
 
-* symgain: ``symgain.placement.place_single_input`` (or ``derive`` on a
+* symgain: ``symgain.design.placement.place_single_input`` (or ``derive`` on a
   Model with ``--via-model``), exact arithmetic over the fraction field;
 * plain: expand det(sI - A + B K) with symbolic gains, collect the
   coefficients in s and hand the linear equations to ``sympy.solve``. It runs
@@ -43,7 +43,7 @@ def target_polynomial(n_states: int) -> sp.Expr:
 def symgain_route(n: int, via_model: bool) -> tuple[float, sp.Matrix]:
     """Time to derive K with symgain (seconds) and the gain."""
     from symgain.design import derive
-    from symgain.placement import place_single_input
+    from symgain.design.placement import place_single_input
 
     if via_model:
         model = chain_model(n)

@@ -25,7 +25,7 @@ import test_hostile as cases  # noqa: E402
 
 from symgain.emit import emit  # noqa: E402
 from symgain.errors import SymgainError  # noqa: E402
-from symgain.model_file import model_from_text  # noqa: E402
+from symgain.model.toml_file import model_from_text  # noqa: E402
 import symgain  # noqa: E402
 
 SLOW = 2.0

@@ -19,9 +19,9 @@ import scipy.signal
 import sympy as sp
 
 from symgain.design import derive
-from symgain.model_file import load_model
-from symgain.robust import analyze_mismatch, cross_check, ratio_ranges
-from symgain.sweep.evaluate import GainEvaluator
+from symgain.model.toml_file import load_model
+from symgain.analysis.robust import analyze_mismatch, cross_check, ratio_ranges
+from symgain.analysis.evaluate import GainEvaluator
 
 ROOT = Path(__file__).resolve().parent.parent
 MODELS = [ROOT / "symgain/data/demo_conveyor.toml", *sorted((ROOT / "examples").glob("*.toml"))]

@@ -24,13 +24,13 @@ Matrix([[m*w**2, 2*m*w]])
 >>> symgain.check_design(design, n_points=5).passed
 True
 """
-from .api import model_from_equations, model_from_matrices
-from .check import CheckReport, check_design
+from .model.builders import model_from_equations, model_from_matrices
+from .analysis.check import CheckReport, check_design
 from .design import Design, GainDesign, derive
 from .emit.json import design_to_dict, design_to_json
 from .errors import DesignError, ExpressionError, ModelError, NotControllableError, SymgainError
 from .model import Model, Parameter, TargetSpec
-from .model_file import load_model, model_from_text
+from .model.toml_file import load_model, model_from_text
 
 __version__ = "0.1.0"
 

@@ -13,7 +13,7 @@ import sympy as sp
 from symgain.design import derive
 from symgain.emit.common import design_functions
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.model_file import load_model, model_from_text
+from symgain.model.toml_file import load_model, model_from_text
 
 EXAMPLES = ["demo"] + [str(p) for p in sorted((Path(__file__).resolve().parent.parent / "examples").glob("*.toml"))]
 IDS = [Path(p).stem for p in EXAMPLES]

@@ -1,4 +1,4 @@
-"""Validity conditions and the numeric check (symgain.validity, symgain.check).
+"""Validity conditions and the numeric check (symgain.design.validity, symgain.analysis.check).
 
 Outside references: scipy.signal.place_poles and numpy eigenvalues (inside check_design),
 and the controllability rule (common practice: single-input pole placement exists exactly
@@ -10,11 +10,11 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from symgain.check import check_design, sample_points
+from symgain.analysis.check import check_design, sample_points
 from symgain.design import derive
 from symgain.errors import ModelError
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.validity import holds_at, nonzero_conditions
+from symgain.design.validity import holds_at, nonzero_conditions
 
 
 def gain_model(sign, low=-1.0, high=1.0, nominal=None, poles=(-2, -3)):

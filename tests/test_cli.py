@@ -15,7 +15,7 @@ import sympy as sp
 
 from symgain.cli import build_parser, main
 from symgain.design import derive
-from symgain.model_file import load_model
+from symgain.model.toml_file import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 EXAMPLES = sorted((ROOT / "examples").glob("*.toml"))

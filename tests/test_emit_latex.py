@@ -75,7 +75,7 @@ def expected(design, key: str):
         if path[1] == "extra":
             value = part.extra[path[2]]
         elif path[1] == "sensitivity":  # dK[i, j]/dp, from the design's sensitivity table
-            from symgain.sensitivity import sensitivity_table
+            from symgain.analysis.sensitivity import sensitivity_table
 
             return sensitivity_table(design)[path[0]][(indices[0], indices[1], path[2])]
         elif path[1] == "target_poles":
@@ -180,7 +180,7 @@ def test_report_compiles_without_overfull_lines(path, tmp_path):
 def test_report_lists_gain_sensitivities():
     """Issue 6: the partial derivatives of the gains appear in the report, one keyed formula each."""
     from symgain.emit.latex import latex_report
-    from symgain.model_file import load_model
+    from symgain.model.toml_file import load_model
     from symgain.design import derive
 
     design = derive(load_model(Path(__file__).resolve().parents[1] / "examples" / "greenhouse_cart.toml"))

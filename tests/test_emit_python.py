@@ -59,7 +59,7 @@ def test_broadcasting_and_docstring(tmp_path):
 def test_condition_failure_and_keyword_names(tmp_path):
     design = design_of("odd")  # parameters lambda, int, omega_n; condition int != 0
     module, file = load_emitted(design, tmp_path, "odd_mod")
-    assert "def feedback_gain(*, lambda_p, int, omega_n):" in file.read_text()
+    assert 'def feedback_gain(*, lambda_p, int, omega_n, on_invalid="raise"):' in file.read_text()
     # K = [2 lambda omega_n^2 / int, (3 lambda omega_n - 1) / int], worked by hand for poles -w, -2w
     k = module.feedback_gain(lambda_p=1.5, int=2.0, omega_n=2.0)
     np.testing.assert_allclose(k, [[2 * 1.5 * 4 / 2, (3 * 1.5 * 2 - 1) / 2]], rtol=1e-15)
@@ -72,6 +72,13 @@ def test_condition_failure_and_keyword_names(tmp_path):
     with pytest.raises(ValueError):
         module.feedback_gain(lambda_p=1.5, int=1e-13, omega_n=2.0)
     assert np.isfinite(module.feedback_gain(lambda_p=1.5, int=1e-9, omega_n=2.0)).all()
+    # on_invalid="nan" (what schedules use): NaN exactly where the condition fails, the same
+    # numbers elsewhere
+    marked = module.feedback_gain(lambda_p=1.5, int=gains, omega_n=2.0, on_invalid="nan")
+    assert np.isnan(marked[1, 1]).all() and np.isfinite(np.delete(marked.reshape(6, 2), 4, axis=0)).all()
+    np.testing.assert_array_equal(marked[0, 2], module.feedback_gain(lambda_p=1.5, int=3.0, omega_n=2.0))
+    with pytest.raises(ValueError, match="on_invalid"):
+        module.feedback_gain(lambda_p=1.5, int=2.0, omega_n=2.0, on_invalid="ignore")
 
 
 def test_no_sympy_needed(tmp_path):

@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from symgain.equations import linearize_plant
+from symgain.model.equations import linearize_plant
 from symgain.errors import ModelError, Where
-from symgain.model_file import model_from_text
+from symgain.model.toml_file import model_from_text
 
 m, g, l, b, k = sp.symbols("m g l b k", positive=True)
 theta0 = sp.Symbol("theta0", real=True)
@@ -48,7 +48,7 @@ CART_POLE = {"x": "v", "v": "(F + m*l*sin(phi)*w^2 - m*g*sin(phi)*cos(phi))/(k +
 ])
 def test_jacobian_matches_finite_differences(equations, point, states, inputs):
     """The symbolic A, B agree with central differences of the nonlinear right-hand side (numpy)."""
-    from symgain.expressions import parse_expression
+    from symgain.model.expressions import parse_expression
 
     result = lin(equations, point, states=states, inputs=inputs)
     values = {m: 2.0, g: 9.81, l: 0.7, k: 3.0, b: 0.3}

@@ -18,11 +18,11 @@ import sympy as sp
 from scipy import signal
 
 from symgain.cli import main
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.design import derive
 from symgain.errors import DesignError, NotControllableError
 from symgain.model import Model, Parameter, S, TargetSpec
-from symgain.model_file import load_model, model_from_text
+from symgain.model.toml_file import load_model, model_from_text
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -158,7 +158,7 @@ def test_unobservable_plant_is_refused():
 
 def test_separation_property_symbolically():
     """det(sI - M) of the plant-regulator-estimator loop equals the product of both targets."""
-    from symgain.estimator import separation_polynomial
+    from symgain.design.estimator import separation_polynomial
 
     model = load_model(STAGE)
     design = derive(model)

@@ -2,8 +2,8 @@
 
 * coefficient matching and Ackermann's formula agree symbolically (single-input feedback);
 * det(sI - A + B K) by sympy's Matrix.det equals the target polynomial (small models);
-* symgain.check.check_design passes (scipy.signal.place_poles inside);
-* and, written out here without symgain.check: at a few parameter points the gain evaluated
+* symgain.analysis.check.check_design passes (scipy.signal.place_poles inside);
+* and, written out here without symgain.analysis.check: at a few parameter points the gain evaluated
   by sympy equals scipy.signal.place_poles for the target's numeric roots (when distinct), and
   numpy's eigenvalues of A - B K are the target roots.
 """
@@ -15,11 +15,11 @@ import pytest
 import sympy as sp
 from scipy import signal
 
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.design import derive
 from symgain.model import S
-from symgain.model_file import load_model, model_from_text
-from symgain.placement import ackermann
+from symgain.model.toml_file import load_model, model_from_text
+from symgain.design.placement import ackermann
 
 EXAMPLES = sorted((Path(__file__).resolve().parent.parent / "examples").glob("*.toml"))
 IDS = [p.stem for p in EXAMPLES]

@@ -1,4 +1,4 @@
-"""Tests for symgain.expressions: the safe reader from math text to sympy.
+"""Tests for symgain.model.expressions: the safe reader from math text to sympy.
 
 Expected values are written out by hand or built with sympy's own operators,
 never taken from the parser under test. Sources are named beside each check.
@@ -13,9 +13,9 @@ import sympy
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from symgain import expressions
+from symgain.model import expressions
 from symgain.errors import ExpressionError, Where
-from symgain.expressions import (
+from symgain.model.expressions import (
     ALLOWED_FUNCTIONS,
     MAX_DEPTH,
     RESERVED_NAMES,

@@ -14,12 +14,12 @@ import pytest
 import sympy as sp
 from scipy import signal
 
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.cli import main
 from symgain.design import derive
 from symgain.errors import DesignError
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.model_file import load_model
+from symgain.model.toml_file import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 STAGE = ROOT / "examples" / "linear_stage.toml"
@@ -82,7 +82,7 @@ def test_two_input_boat_feedforward_is_identity_at_dc():
 
     data = tomllib.loads(BOAT.read_text())
     data["feedforward"] = {}
-    from symgain.model_file import model_from_dict
+    from symgain.model.toml_file import model_from_dict
 
     model = model_from_dict(data, "boat.toml")
     design = derive(model)

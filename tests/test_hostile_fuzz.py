@@ -14,7 +14,7 @@ from hypothesis import strategies as st
 
 from symgain.errors import SymgainError
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.model_file import model_from_text
+from symgain.model.toml_file import model_from_text
 
 from hostile_helpers import ALL_PAYLOADS, MARK, cart_text, one_bounded_line, run_cli, toml_string
 

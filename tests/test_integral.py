@@ -15,12 +15,12 @@ import pytest
 import sympy as sp
 from scipy import signal
 
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.cli import main
 from symgain.design import derive
 from symgain.errors import DesignError
 from symgain.model import Model, Parameter, S, TargetSpec
-from symgain.model_file import load_model
+from symgain.model.toml_file import load_model
 
 ROOT = Path(__file__).resolve().parent.parent
 PLATEN = ROOT / "examples" / "heated_press_platen.toml"

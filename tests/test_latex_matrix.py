@@ -8,8 +8,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from symgain.errors import ExpressionError, ModelError, Where
-from symgain.latex_matrix import latex_name_to_identifier, parse_latex_matrix
-from symgain.model_file import model_from_text
+from symgain.model.latex_matrix import latex_name_to_identifier, parse_latex_matrix
+from symgain.model.toml_file import model_from_text
 
 m, c, k = sp.symbols("m c k", positive=True)
 omega_n, m_p, ell, theta0 = sp.symbols("omega_n m_p ell theta0", positive=True)

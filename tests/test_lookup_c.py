@@ -8,10 +8,10 @@ import sympy as sp
 
 from symgain.design import derive
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.model_file import load_model
-from symgain.sweep.evaluate import GainEvaluator
-from symgain.sweep.lookup_c import interpolate, interpolation_errors, lookup_table_c
-from symgain.sweep.schedule import compute_schedule, parse_axis
+from symgain.model.toml_file import load_model
+from symgain.analysis.evaluate import GainEvaluator
+from symgain.emit.lookup_c import interpolate, interpolation_errors, lookup_table_c
+from symgain.analysis.schedule import compute_schedule, parse_axis
 
 DEMO = "symgain/data/demo_conveyor.toml"
 CC = shutil.which("cc") or shutil.which("gcc")

@@ -1,4 +1,4 @@
-"""Reading model files (symgain.model_file) against the contract in the model-file reference.
+"""Reading model files (symgain.model.toml_file) against the contract in the model-file reference.
 
 Good files must give the matrices and targets written in them; bad files must raise one
 SymgainError whose one-line message names the file, the key (and row/column of a matrix
@@ -9,7 +9,7 @@ import sympy as sp
 
 from symgain.errors import ExpressionError, ModelError, SymgainError
 from symgain.model import S
-from symgain.model_file import load_model, model_from_text
+from symgain.model.toml_file import load_model, model_from_text
 
 BASE = '''name = "cart"
 title = "a test cart"

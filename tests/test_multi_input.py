@@ -14,13 +14,13 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.cli import main
 from symgain.design import derive
 from symgain.errors import DesignError, ExpressionError, ModelError
 from symgain.model import Model, Parameter, S, TargetSpec
-from symgain.model_file import load_model
-from symgain.multi_input import place_structured
+from symgain.model.toml_file import load_model
+from symgain.design.several_inputs import place_structured
 
 ROOT = Path(__file__).resolve().parent.parent
 BOAT = ROOT / "examples" / "twin_thruster_boat.toml"

@@ -9,8 +9,8 @@ Three independent routes must agree symbolically:
 import pytest
 import sympy as sp
 
-from symgain.placement import ackermann, controllability_matrix, gain_symbols, place_single_input
-from symgain.algebra import Field
+from symgain.design.placement import ackermann, controllability_matrix, gain_symbols, place_single_input
+from symgain.design.algebra import Field
 
 s = sp.Symbol("s")
 m, k, c, w, J, b, T, g, l = sp.symbols("m k c w J b T g l", positive=True)

@@ -6,13 +6,13 @@ import pytest
 from matplotlib.image import imread
 
 from symgain.design import derive
-from symgain.model_file import load_model
-from symgain.plots import (DPI, png_bytes, png_size, pole_migration_figure, schedule_figure,
+from symgain.model.toml_file import load_model
+from symgain.emit.plots import (DPI, png_bytes, png_size, pole_migration_figure, schedule_figure,
                            schedule_figure_size, step_figure)
-from symgain.robust import ClosedLoop, pole_migration
-from symgain.sweep.output import write_atomic
-from symgain.sweep.schedule import compute_schedule, parse_axis
-from symgain.sweep.step import step_responses
+from symgain.analysis.robust import ClosedLoop, pole_migration
+from symgain.emit.files import write_atomic
+from symgain.analysis.schedule import compute_schedule, parse_axis
+from symgain.analysis.step_response import step_responses
 
 DEMO = "symgain/data/demo_conveyor.toml"
 

@@ -1,4 +1,4 @@
-"""Tests for symgain.prototypes against published tables and defining formulas.
+"""Tests for symgain.design.prototypes against published tables and defining formulas.
 
 Sources are named beside each table; "from memory" marks values written down
 from memory of the published table rather than copied from it.
@@ -13,7 +13,7 @@ import sympy
 from scipy import signal
 
 from symgain.errors import ModelError, Where
-from symgain.prototypes import MAX_ORDER, PROTOTYPES, prototype_polynomial, prototype_source
+from symgain.design.prototypes import MAX_ORDER, PROTOTYPES, prototype_polynomial, prototype_source
 
 s = sympy.Symbol("s")
 w = sympy.Symbol("w", positive=True)

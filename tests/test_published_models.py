@@ -8,8 +8,8 @@ from pathlib import Path
 
 import sympy as sp
 
-from symgain.equations import linearize_plant
-from symgain.model_file import load_model
+from symgain.model.equations import linearize_plant
+from symgain.model.toml_file import load_model
 
 EXAMPLES = Path(__file__).resolve().parent.parent / "examples"
 

@@ -16,7 +16,7 @@ from scipy import signal
 
 from symgain.design import derive
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.placement import ackermann, place_single_input
+from symgain.design.placement import ackermann, place_single_input
 
 s = sp.Symbol("s")
 SETTINGS = dict(deadline=None, max_examples=30, suppress_health_check=[HealthCheck.too_slow])

@@ -26,8 +26,8 @@ def test_readme_block_runs(code, capsys):
 def test_readme_shows_what_derive_prints():
     """The sample output in the README matches what the command prints today."""
     from symgain.design import derive
-    from symgain.model_file import load_model
-    from symgain.terminal import format_design
+    from symgain.model.toml_file import load_model
+    from symgain.emit.terminal import format_design
 
     text = format_design(derive(load_model(ROOT / "examples" / "greenhouse_cart.toml")))
     readme = (ROOT / "README.md").read_text()

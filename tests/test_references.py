@@ -12,10 +12,10 @@ import pytest
 import sympy as sp
 from scipy import signal
 
-from symgain.check import check_design
+from symgain.analysis.check import check_design
 from symgain.design import derive
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.placement import ackermann, place_single_input
+from symgain.design.placement import ackermann, place_single_input
 
 s = sp.Symbol("s")
 

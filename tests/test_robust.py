@@ -7,8 +7,8 @@ from symgain.cli import main
 from symgain.design import derive
 from symgain.errors import ModelError
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.model_file import load_model
-from symgain.robust import (ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges)
+from symgain.model.toml_file import load_model
+from symgain.analysis.robust import (ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges)
 
 DEMO = "symgain/data/demo_conveyor.toml"
 

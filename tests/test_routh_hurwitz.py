@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from symgain.robust import hurwitz_determinants, routh_hurwitz
+from symgain.analysis.robust import hurwitz_determinants, routh_hurwitz
 
 a0, a1, a2, a3, a4 = sp.symbols("a0:5")
 

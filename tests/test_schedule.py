@@ -12,9 +12,9 @@ from symgain.cli import main
 from symgain.design import derive
 from symgain.errors import ModelError
 from symgain.model import Model, Parameter, TargetSpec
-from symgain.model_file import load_model
-from symgain.sweep.evaluate import GainEvaluator, gain_functions
-from symgain.sweep.schedule import compute_schedule, parse_axis, schedule_csv
+from symgain.model.toml_file import load_model
+from symgain.analysis.evaluate import GainEvaluator, gain_functions
+from symgain.analysis.schedule import compute_schedule, parse_axis, schedule_csv
 
 DEMO = "symgain/data/demo_conveyor.toml"
 

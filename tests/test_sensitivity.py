@@ -8,9 +8,9 @@ import sympy as sp
 from symgain.cli import main
 from symgain.design import derive
 from symgain.emit.json import design_to_json
-from symgain.model_file import load_model
-from symgain.sensitivity import relative_sensitivities, sensitivity_table
-from symgain.sweep.evaluate import GainEvaluator
+from symgain.model.toml_file import load_model
+from symgain.analysis.sensitivity import relative_sensitivities, sensitivity_table
+from symgain.analysis.evaluate import GainEvaluator
 
 DEMO = "symgain/data/demo_conveyor.toml"
 

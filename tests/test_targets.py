@@ -1,4 +1,4 @@
-"""Design targets (symgain.targets) against the standard second-order formulas.
+"""Design targets (symgain.design.targets) against the standard second-order formulas.
 
 Sources: the overshoot/damping relation Mp = exp(-pi zeta / sqrt(1 - zeta^2)) and the 2 %
 settling time Ts = 4 / (zeta omega_n) are common practice (every control text, e.g. Ogata,
@@ -14,7 +14,7 @@ import sympy as sp
 
 from symgain.errors import ModelError, Where
 from symgain.model import S, TargetSpec
-from symgain.targets import damping_from_overshoot, poles_polynomial, resolve_target
+from symgain.design.targets import damping_from_overshoot, poles_polynomial, resolve_target
 
 w = sp.Symbol("w", positive=True)
 

@@ -5,11 +5,11 @@ import argparse
 import time
 from importlib import resources
 
-from ..check import DEFAULT_TOLERANCE, MAX_POINTS, check_design
+from ..analysis.check import DEFAULT_TOLERANCE, MAX_POINTS, check_design
 from . import derive_and_warn
 from ..emit.json import design_to_json
-from ..model_file import load_model, model_from_text
-from ..terminal import format_check, format_design
+from ..model.toml_file import load_model, model_from_text
+from ..emit.terminal import format_check, format_design
 
 _FMT = argparse.RawDescriptionHelpFormatter
 

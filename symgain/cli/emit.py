@@ -5,7 +5,7 @@ import argparse
 
 from . import derive_and_warn
 from ..emit import TARGETS, emit
-from ..model_file import load_model
+from ..model.toml_file import load_model
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build

@@ -11,7 +11,7 @@ import sympy as sp
 from . import derive_and_warn
 from ..errors import ModelError
 from . import whole_number
-from ..model_file import load_model
+from ..model.toml_file import load_model
 
 _FMT = argparse.RawDescriptionHelpFormatter
 MAX_ROBUST_POINTS = 100_000  # eigenvalue cross-check points of robust
@@ -89,17 +89,17 @@ def _progress(total: int, label: str, quiet: bool):
 
 
 def _folder(args, model):
-    from ..sweep.output import default_folder, prepare_folder
+    from ..emit.files import default_folder, prepare_folder
 
     return prepare_folder(args.output or default_folder(model.name))
 
 
 def run_schedule(args) -> int:
-    from ..plots import png_bytes, schedule_figure
-    from ..sweep.evaluate import GainEvaluator
-    from ..sweep.lookup_c import interpolation_errors, lookup_table_c, REFINE
+    from ..emit.plots import png_bytes, schedule_figure
+    from ..analysis.evaluate import GainEvaluator
+    from ..emit.lookup_c import interpolation_errors, lookup_table_c, REFINE
     from ..emit.files import write_files
-    from ..sweep.schedule import compute_schedule, parse_axis, schedule_csv
+    from ..analysis.schedule import compute_schedule, parse_axis, schedule_csv
 
     model = load_model(args.model)
     axes = [parse_axis(text, model) for text in args.over]
@@ -138,9 +138,9 @@ def _interval_text(lo: float, hi: float) -> str:
 
 
 def run_robust(args) -> int:
-    from ..plots import png_bytes, pole_migration_figure
-    from ..robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
-    from ..sweep.output import write_atomic
+    from ..emit.plots import png_bytes, pole_migration_figure
+    from ..analysis.robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
+    from ..emit.files import write_atomic
 
     model = load_model(args.model)
     design = derive_and_warn(model)
@@ -150,7 +150,7 @@ def run_robust(args) -> int:
                          "at once")
     analysis = analyze_mismatch(design, mismatch)
     folder = _folder(args, model)
-    from ..robust import grid_size
+    from ..analysis.robust import grid_size
 
     total = sum(grid_size(model, n) for n in analysis.mismatched)
     with _progress(total, "grid scan", args.quiet) as tick:
@@ -198,8 +198,8 @@ def run_robust(args) -> int:
 
 
 def run_sensitivity(args) -> int:
-    from ..sensitivity import relative_sensitivities, sensitivity_table
-    from ..sweep.evaluate import gain_entries
+    from ..analysis.sensitivity import relative_sensitivities, sensitivity_table
+    from ..analysis.evaluate import gain_entries
 
     model = load_model(args.model)
     design = derive_and_warn(model)
@@ -226,9 +226,9 @@ def run_sensitivity(args) -> int:
 
 
 def run_plot(args) -> int:
-    from ..plots import png_bytes, step_figure
-    from ..sweep.output import write_atomic
-    from ..sweep.step import corner_points, step_responses
+    from ..emit.plots import png_bytes, step_figure
+    from ..emit.files import write_atomic
+    from ..analysis.step_response import corner_points, step_responses
 
     if not args.step:
         raise ModelError("choose a figure to draw: --step")

@@ -20,7 +20,7 @@ from pathlib import Path
 
 from ..design import Design
 from ..errors import OutputError, printable
-from ..identifiers import C_KEYWORDS, PYTHON_KEYWORDS, describe_name, is_identifier
+from ..model.identifiers import C_KEYWORDS, PYTHON_KEYWORDS, describe_name, is_identifier
 
 __all__ = ["emit", "render", "TARGETS"]
 

@@ -35,7 +35,7 @@ from sympy.printing.precedence import PRECEDENCE
 
 from ..design import Design
 from ..errors import OutputError, printable
-from ..identifiers import C_RESERVED
+from ..model.identifiers import C_RESERVED
 from .common import TOLERANCE, Function, design_functions, failure_rule, mangle, shared_subexpressions
 from .escape import c_comment
 

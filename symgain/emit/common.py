@@ -31,7 +31,7 @@ from dataclasses import dataclass
 import sympy as sp
 
 from ..design import Design
-from ..identifiers import PYTHON_KEYWORDS
+from ..model.identifiers import PYTHON_KEYWORDS
 
 __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
            "mangle", "TOLERANCE"]
@@ -120,4 +120,4 @@ def mangle(name: str, reserved: set[str]) -> str:
     return name
 
 
-PYTHON_RESERVED = set(PYTHON_KEYWORDS) | {"numpy", "shape", "out", "_fails"}
+PYTHON_RESERVED = set(PYTHON_KEYWORDS) | {"numpy", "shape", "out", "_fails", "_bad", "_invalid_mask", "on_invalid"}

@@ -29,7 +29,7 @@ from pathlib import Path
 
 from ..errors import OutputError, printable
 
-__all__ = ["write_atomic", "write_files", "prepare_folder"]
+__all__ = ["write_atomic", "write_files", "prepare_folder", "default_folder"]
 
 
 def prepare_folder(folder) -> Path:
@@ -126,3 +126,12 @@ def write_files(folder, texts: dict[str, str | bytes], prepare: bool = True) -> 
         if saved is not None and os.path.exists(saved):
             os.unlink(saved)
     return targets
+
+
+def default_folder(model_name: str) -> Path:
+    """``./symgain-out/<model name>``, where commands write when no folder is given.
+
+    >>> default_folder("cart").as_posix()
+    'symgain-out/cart'
+    """
+    return Path("symgain-out") / model_name

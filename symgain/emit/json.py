@@ -19,7 +19,7 @@ import json
 import sympy as sp
 
 from ..design import Design, GainDesign
-from ..sensitivity import sensitivity_matrices
+from ..analysis.sensitivity import sensitivity_matrices
 
 __all__ = ["design_to_dict", "design_to_json"]
 

@@ -4,7 +4,7 @@ Sections: the plant with its parameter table, then for each designed part
 the target and where it comes from and the derivation step by step (read
 generically from ``part.steps``; the coefficient equations are set with the
 power of ``s`` they match), the validity conditions, the numeric cross-check
-table (:func:`symgain.check.check_design`), the safety caution and a sign-off
+table (:func:`symgain.analysis.check.check_design`), the safety caution and a sign-off
 block. Needs only amsmath and amssymb, and geometry (all in
 Debian's texlive-latex-base).
 
@@ -28,9 +28,9 @@ from __future__ import annotations
 
 import sympy as sp
 
-from ..check import check_design
+from ..analysis.check import check_design
 from ..design import GAIN_AXES, Design, GainDesign, Step
-from ..sensitivity import sensitivity_table, small_expression
+from ..analysis.sensitivity import sensitivity_table, small_expression
 from .latex_layout import equation_lines, formula_lines, matrix_tex, tex, text
 
 __all__ = ["latex_report", "CAUTION"]

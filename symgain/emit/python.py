@@ -4,7 +4,10 @@ Each function takes the parameters as keyword arguments, accepts floats or
 numpy arrays (broadcast together) and returns an array of shape
 ``(..., rows, cols)``. Before computing, it tests the validity conditions
 (rule in :mod:`symgain.emit.common`) and raises ``ValueError`` naming the
-condition and, for arrays, the first offending index. Shared subexpressions
+condition and, for arrays, the first offending index; with ``on_invalid="nan"``
+it returns NaN gains at the failing points instead (schedules use this: the
+module is the one vectorized evaluator of the project, see
+:mod:`symgain.analysis.evaluate`). Shared subexpressions
 are computed once (``sympy.cse``). Names that are Python keywords get ``_p``
 appended. Every argument must be a finite number with the declared sign of
 its parameter (``ValueError`` otherwise, naming the argument), and a result
@@ -14,14 +17,16 @@ text (title, meanings, units) is escaped (:mod:`symgain.emit.escape`).
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.design import derive
->>> m = Parameter.declare("m", sign="positive", range=(1, 2))
->>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
-...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+>>> b = Parameter.declare("b", sign="real", range=(1, 2))
+>>> model = Model(name="cart", parameters=(b,), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [b.symbol]]),
 ...               feedback=TargetSpec("poles", {"poles": (-1, -1)}))
 >>> namespace = {}
 >>> exec(python_module(derive(model)), namespace)
->>> namespace["feedback_gain"](m=[1.0, 2.0]).tolist()
-[[[1.0, 2.0]], [[2.0, 4.0]]]
+>>> namespace["feedback_gain"](b=[1.0, 2.0]).tolist()
+[[[1.0, 2.0]], [[0.5, 1.0]]]
+>>> namespace["feedback_gain"](b=[1.0, 0.0], on_invalid="nan").tolist()  # valid when b != 0
+[[[1.0, 2.0]], [[nan, nan]]]
 """
 from __future__ import annotations
 
@@ -86,22 +91,25 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
     symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in fn.conditions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
-    body = [f"def {fn.name}(*, {args}):"]
+    body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\"):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
     signs = {p.name: p.sign for p in design.model.parameters}
     for a in fn.arguments:
-        body.append(f"    {names[a]} = _argument({names[a]}, {names[a]!r}, {fn.name!r}, "
-                    f"{signs.get(a, 'real')!r})")
+        body.append(f"    {names[a]} = _argument({names[a]}, {names[a]!r}, {fn.name!r})")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
-    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails"}
+    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails", "_bad", "on_invalid"}
+    body.append("    _bad = _invalid_mask(on_invalid, shape)")
+    for a in fn.arguments:
+        body.append(f"    _bad = _sign({names[a]}, {names[a]!r}, {fn.name!r}, {signs.get(a, 'real')!r}, "
+                    "shape, _bad)")
     if fn.conditions:
         conds = [c.xreplace(rename) for c in fn.conditions]
         for cond, orig in zip(conds, fn.conditions):
             (value,), terms = failure_rule(cond)
             scale = " + ".join(f"numpy.abs({printer.doprint(t)})" for t in terms)
-            body.append(f"    _fails(numpy.abs({printer.doprint(value)}) <= "
+            body.append(f"    _bad = _fails(numpy.abs({printer.doprint(value)}) <= "
                         f"{TOLERANCE['double']!r} * (1.0 + {scale}), shape, "
-                        f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r})")
+                        f"{fn.name!r}, {sp.sstr(orig) + ' != 0'!r}, _bad)")
     entries = [e.xreplace(rename) for e in fn.matrix]
     replacements, reduced = shared_subexpressions(entries, avoid)
     rows, cols = fn.shape
@@ -121,7 +129,7 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         body.append(f"    {target} = {printer.doprint(expr)}")
         if index in done:
             body.append(f"    del {', '.join(sorted(done[index]))}")
-    body.append(f"    return _finite(out, {fn.name!r})")
+    body.append(f"    return _finite(out, {fn.name!r}, _bad)")
     return body
 
 
@@ -136,35 +144,60 @@ def _where(bad):
     return f"at index {tuple(int(i) for i in numpy.argwhere(bad)[0])}"
 
 
-def _argument(value, name, function, sign):
-    """The argument as a float array; ValueError where it is not finite or breaks its declared sign."""
+def _argument(value, name, function):
+    """The argument as a float array (text is refused, not converted)."""
     if isinstance(value, (str, bytes)):
         raise TypeError(f"{function}: {name} must be a number or an array of numbers, not text")
-    value = numpy.asarray(value, dtype=numpy.float64)
+    return numpy.asarray(value, dtype=numpy.float64)
+
+
+def _sign(value, name, function, sign, shape, mask):
+    """Raise ValueError where the argument is not finite or breaks its declared sign,
+    or, with a mask, add those points to it (their gains become NaN)."""
     test, word = _SIGNS[sign]
     with numpy.errstate(invalid="ignore"):
-        bad = ~(numpy.isfinite(value) & test(value))
+        bad = numpy.broadcast_to(~(numpy.isfinite(value) & test(value)), shape)
+    if mask is not None:
+        return mask | bad
     if bad.any():
         raise ValueError(f"{function}: {name} must be a finite {word} number (declared sign), "
                          f"fails {_where(bad)}")
-    return value
+    return None
 
 
-def _finite(out, function):
-    """The result; ValueError where an entry is not a finite number (never returns inf or nan)."""
+def _finite(out, function, mask):
+    """The result: never inf or nan where it is returned as valid (ValueError instead,
+    or NaN at the masked points with on_invalid="nan")."""
+    if mask is not None:
+        out[mask | ~numpy.isfinite(out).all(axis=(-2, -1))] = numpy.nan
+        return out
     bad = ~numpy.isfinite(out).all(axis=(-2, -1))
     if bad.any():
         raise ValueError(f"{function}: the gain is not finite {_where(bad)}")
     return out
 
-def _fails(bad, shape, function, condition):
-    """Raise ValueError where a validity condition fails (the first offending index)."""
+
+def _invalid_mask(on_invalid, shape):
+    """None to raise on a failed condition; a mask to collect failures ("nan")."""
+    if on_invalid == "raise":
+        return None
+    if on_invalid == "nan":
+        return numpy.zeros(shape, dtype=bool)
+    raise ValueError(f"on_invalid must be 'raise' or 'nan', not {on_invalid!r}")
+
+
+def _fails(bad, shape, function, condition, mask):
+    """Raise ValueError where a validity condition fails (the first offending index),
+    or, with a mask, add the failing points to it (their gains become NaN)."""
     bad = numpy.broadcast_to(bad, shape)
+    if mask is not None:
+        return mask | bad
     if bad.any():
         if bad.ndim == 0:
             raise ValueError(f"{function}: condition {condition} fails at these parameter values")
         index = tuple(int(i) for i in numpy.argwhere(bad)[0])
         raise ValueError(f"{function}: condition {condition} fails at index {index}")
+    return None
 '''
 
 

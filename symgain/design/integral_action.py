@@ -27,9 +27,12 @@ from dataclasses import replace
 
 import sympy as sp
 
-from .errors import DesignError
-from .model import Model
+from ..errors import DesignError
+from ..model import Model
 from .validity import nonzero_conditions
+from .result import Step
+from .several_inputs import design_several_inputs
+from .single_input import design_gain
 
 __all__ = ["augmented_plant", "design_integral", "zero_at_origin_matrix"]
 
@@ -71,9 +74,6 @@ def _generic_rank(M: sp.Matrix) -> int:
 
 def design_integral(model: Model, avoid: set[str]):
     """The integral part: gain = K (inputs x states), extra["integral_gain"] = Ki (inputs x outputs)."""
-    from .design import Step, design_gain
-    from .multi_input import design_several_inputs
-
     spec = model.integral
     if model.C is None or model.n_outputs == 0:
         raise DesignError("integral action integrates the outputs, but the plant has no outputs; "

@@ -1,7 +1,7 @@
 """Read a model file (TOML, see docs/model-file.md) into a :class:`Model`.
 
 Nothing in the file is evaluated as code: every expression goes through
-:func:`symgain.expressions.parse_expression`.
+:func:`symgain.model.expressions.parse_expression`.
 
 >>> text = '''
 ... name = "cart"
@@ -35,9 +35,9 @@ from typing import Any
 
 import sympy as sp
 
-from .errors import ModelError, Where, printable
+from ..errors import ModelError, Where, printable
 from .expressions import parse_expression
-from .model import S, Model, Parameter, TargetSpec, _shown
+from .definition import PROTOTYPE_NAMES, S, Model, Parameter, TargetSpec, _shown
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -183,15 +183,13 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
         if kind not in ("damping", "settling"):
             raise ModelError("extra_poles goes with damping or settling_time targets", where=where)
         values["extra_poles"] = _expr_list(table["extra_poles"], symbols, where.child("extra_poles"))
-    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.multi_input
+    for key in ("pattern", "input_direction", "output_direction"):  # read by symgain.design.several_inputs
         if key in table:
             values[key] = table[key]
     if kind == "prototype":
-        from .prototypes import PROTOTYPES
-
-        if values["prototype"] not in PROTOTYPES:
+        if values["prototype"] not in PROTOTYPE_NAMES:
             raise ModelError(f"unknown prototype {_shown(table['prototype'])}; choose one of "
-                             f"{', '.join(PROTOTYPES)}", where=where.child("prototype"))
+                             f"{', '.join(PROTOTYPE_NAMES)}", where=where.child("prototype"))
     return TargetSpec(kind, values, where)
 
 

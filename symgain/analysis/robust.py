@@ -22,11 +22,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import sympy as sp
 
+from ..design import Design
+from ..errors import DesignError, ModelError, Where
+from ..model import S
 from .numeric import lambdify
-
-from .design import Design
-from .errors import DesignError, ModelError, Where
-from .model import S
 
 __all__ = ["routh_hurwitz", "hurwitz_determinants", "positive_part", "MismatchAnalysis",
            "analyze_mismatch", "stable_ratio_set", "RatioRange", "ratio_ranges", "cross_check",

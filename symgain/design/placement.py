@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import sympy as sp
 from .algebra import Field, SparseLU, charpoly, matvec
-from .model import S
+from ..model import S
 
 __all__ = ["SingleInputPlacement", "place_single_input", "ackermann", "controllability_matrix",
            "gain_symbols"]

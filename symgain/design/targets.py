@@ -17,8 +17,8 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from .errors import ModelError, printable
-from .model import S, TargetSpec
+from ..errors import ModelError, printable
+from ..model import S, TargetSpec
 
 __all__ = ["Target", "resolve_target", "poles_polynomial", "damping_from_overshoot", "exact",
            "target_warnings"]
@@ -53,7 +53,7 @@ def exact(value, where=None) -> sp.Expr:
     if isinstance(value, sp.Basic) and not isinstance(value, sp.MatrixBase):
         return value
     if isinstance(value, (int, float)) and not isinstance(value, bool):
-        from .expressions import parse_expression
+        from ..model.expressions import parse_expression
 
         return parse_expression(value, {}, where=where)
     if isinstance(value, str):

@@ -30,7 +30,7 @@ from typing import Callable, Mapping
 
 import sympy
 
-from symgain.errors import ExpressionError, Where
+from ..errors import ExpressionError, Where
 
 __all__ = [
     "parse_expression",

@@ -29,9 +29,9 @@ from typing import Any, Iterable, Mapping
 
 import sympy as sp
 
-from .errors import ModelError, Where
-from .model import Model, Parameter, TargetSpec, _shown
-from .model_file import model_from_dict
+from ..errors import ModelError, Where
+from .definition import Model, Parameter, TargetSpec, _shown
+from .toml_file import model_from_dict
 
 __all__ = ["model_from_matrices", "model_from_equations"]
 
@@ -190,7 +190,7 @@ def model_from_matrices(name: str, A, B, *, C=None, D=None, states=None, inputs=
 
 def _shapes(plant: dict, params: dict) -> tuple[int, int, int]:
     """Rows of A, columns of B and rows of C, reading the matrices once."""
-    from .model_file import parse_matrix
+    from .toml_file import parse_matrix
 
     declared = {}
     for pname, spec in params.items():

@@ -28,12 +28,11 @@ import numpy as np
 import scipy.signal
 import sympy as sp
 
+from ..design import Design, GainDesign
+from ..design.validity import holds_at
+from ..errors import DesignError, ModelError, Where, printable
+from ..model import S, Model
 from .numeric import lambdify
-
-from .design import Design, GainDesign
-from .errors import DesignError, ModelError, Where, printable
-from .model import S, Model
-from .validity import holds_at
 
 __all__ = ["PointResult", "CheckReport", "sample_points", "check_design", "DEFAULT_TOLERANCE",
            "closed_loop_matrix", "augmented_matrices", "steady_state_error"]
@@ -293,7 +292,7 @@ def check_design(design: Design, n_points: int = 20, seed: int = 0,
     if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating)) \
             or not math.isfinite(tolerance) or not tolerance > 0:
         raise ModelError(f"tolerance must be a positive finite number, found {printable(repr(tolerance), 30)}")
-    from .guard import stage
+    from ..guard import stage
 
     stage("numeric check", f"{n_points} points")
     points = sample_points(design.model, int(n_points), int(seed))

@@ -28,7 +28,7 @@ import numpy as np
 import scipy.signal
 import sympy as sp
 
-from ..numeric import lambdify
+from .numeric import lambdify
 
 from ..design import Design
 from ..errors import DesignError, Where

@@ -23,7 +23,7 @@ from __future__ import annotations
 import numpy as np
 import sympy as sp
 
-from .design import Design
+from ..design import Design
 
 __all__ = ["sensitivity_table", "relative_sensitivities", "sensitivity_matrices", "small_expression"]
 

@@ -14,10 +14,10 @@ from __future__ import annotations
 
 import sympy as sp
 
-from .check import CheckReport
-from .design import Design, GainDesign, gain_labels
-from .errors import printable
-from .model import S
+from ..analysis.check import CheckReport
+from ..design import Design, GainDesign, gain_labels
+from ..errors import printable
+from ..model import S
 
 __all__ = ["format_design", "format_check", "format_polynomial"]
 

@@ -29,8 +29,11 @@ from dataclasses import replace
 
 import sympy as sp
 
-from .errors import DesignError
-from .model import S, Model
+from ..errors import DesignError
+from ..model import S, Model
+from .result import Step
+from .several_inputs import design_several_inputs
+from .single_input import design_gain
 
 __all__ = ["design_estimator", "separation_polynomial", "SEPARATION_NOTE"]
 
@@ -42,9 +45,6 @@ SEPARATION_TITLE = "separation property: closed-loop polynomial det(sI - A + B K
 
 def design_estimator(model: Model, avoid: set[str], feedback=None):
     """The estimator part of a design (GainDesign with symbol L, rows states, columns outputs)."""
-    from .design import Step, design_gain
-    from .multi_input import design_several_inputs
-
     spec = model.estimator
     if model.C is None or model.n_outputs == 0:
         raise DesignError("an estimator needs measurements, but the plant has no outputs; "
@@ -100,8 +100,6 @@ def _swap(value, mapping):
 
 def _index_by_state(part, p: int):
     """Rename the dual's l_ij (output i, state j) to l_ji, so that l_ij sits at L[i, j]."""
-    from .design import Step
-
     Lsym = part.extra["gain_symbols"]
     mapping = {}
     for i in range(Lsym.rows):

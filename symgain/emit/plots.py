@@ -24,7 +24,7 @@ from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.cm import ScalarMappable
 
-from .emit.escape import plot_text
+from .escape import plot_text
 
 __all__ = ["DPI", "new_figure", "png_bytes", "png_size", "schedule_figure", "pole_migration_figure",
            "step_figure", "schedule_figure_size"]

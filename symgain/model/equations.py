@@ -35,7 +35,7 @@ from typing import Any, Mapping
 
 import sympy as sp
 
-from .errors import ModelError, Where
+from ..errors import ModelError, Where
 from .expressions import parse_expression
 
 __all__ = ["Linearization", "linearize_plant", "SOLVE"]

@@ -46,11 +46,12 @@ from math import factorial
 
 import sympy
 
-from symgain.errors import ModelError, Where
+from ..errors import ModelError, Where
+from ..model.definition import PROTOTYPE_NAMES
 
 __all__ = ["PROTOTYPES", "MAX_ORDER", "prototype_polynomial", "prototype_source"]
 
-PROTOTYPES: tuple[str, ...] = ("binomial", "butterworth", "bessel", "itae")
+PROTOTYPES: tuple[str, ...] = PROTOTYPE_NAMES
 MAX_ORDER = 8
 
 _SOURCES = {

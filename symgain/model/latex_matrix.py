@@ -41,7 +41,7 @@ from typing import Mapping
 
 import sympy as sp
 
-from .errors import ExpressionError, ModelError, Where
+from ..errors import ExpressionError, ModelError, Where
 from .expressions import ALLOWED_FUNCTIONS, MAX_EXPONENT, MAX_LITERAL_DIGITS, MAX_NUMBER_BITS, _bits
 
 __all__ = ["parse_latex_matrix", "latex_name_to_identifier", "ENVIRONMENTS", "ALLOWED_COMMANDS",

@@ -27,9 +27,10 @@ from __future__ import annotations
 import sympy as sp
 
 from .algebra import Field, SparseLU
-from .errors import DesignError, Where
-from .model import Model
+from ..errors import DesignError, Where
+from ..model import Model
 from .validity import nonzero_conditions
+from .result import GainDesign, Step
 
 __all__ = ["design_feedforward", "steady_state_gain"]
 
@@ -53,8 +54,6 @@ def steady_state_gain(A, B, C, D, K):
 
 def design_feedforward(model: Model, feedback, integral=None):
     """The feedforward part: gain N (inputs x outputs), target None, steps showing the formula."""
-    from .design import GainDesign, Step
-
     where = Where(model.source, "feedforward")
     if model.C is None or model.n_outputs == 0:
         raise DesignError("feedforward makes the outputs follow r, but the plant has no outputs; "

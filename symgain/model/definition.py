@@ -23,7 +23,7 @@ from typing import Any, Mapping
 
 import sympy as sp
 
-from .errors import ModelError, Where, printable
+from ..errors import ModelError, Where, printable
 from .identifiers import describe_name, is_identifier
 
 __all__ = ["Parameter", "TargetSpec", "Model", "SIGNS", "ROLES", "TARGET_KINDS"]
@@ -91,6 +91,10 @@ def _assumptions(sign: str) -> dict[str, bool]:
         "nonzero": {"nonzero": True, "real": True},
         "real": {"real": True},
     }[sign]
+
+
+# The standard normalized pole patterns a target may name (tables in symgain.design.prototypes).
+PROTOTYPE_NAMES: tuple[str, ...] = ("binomial", "butterworth", "bessel", "itae")
 
 
 def _shown(value) -> str:
@@ -381,7 +385,7 @@ class Model:
         return {p.name: p.nominal for p in self.parameters if p.nominal is not None}
 
     def _repr_markdown_(self) -> str:
-        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.display`)."""
-        from .display import model_markdown
+        """Jupyter display: parameters, matrices and targets (see :mod:`symgain.notebook`)."""
+        from ..notebook import model_markdown
 
         return model_markdown(self)

@@ -33,13 +33,15 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from .errors import DesignError, ModelError, Where
-from .expressions import parse_expression
-from .model import _shown
-from .model import S, TargetSpec
+from ..errors import DesignError, ModelError, Where
+from ..model.definition import _shown
+from ..model.expressions import parse_expression
+from ..model import S, TargetSpec
 from .placement import gain_symbols
 from .targets import resolve_target
 from .validity import nonzero_conditions
+from .result import GainDesign, Step
+from .single_input import design_gain
 
 __all__ = ["parse_pattern", "parse_direction", "StructuredPlacement", "place_structured",
            "design_several_inputs"]
@@ -197,8 +199,6 @@ def design_several_inputs(A: sp.Matrix, B: sp.Matrix, spec: TargetSpec, *, part:
                           word: str = "controllable", pattern_shape=None,
                           transpose_pattern: bool = False):
     """A GainDesign for A - B K with several inputs (pattern or input direction)."""
-    from .design import GainDesign, Step, design_gain  # the single-input route lives there
-
     symbols = symbols or {}
     n, m = A.rows, B.cols
     target = resolve_target(spec, n)

@@ -1,8 +1,9 @@
 """The vectorized path: every designed gain as one numpy function of the parameters.
 
-All entries of all parts are compiled together with ``sympy.lambdify`` after
-common-subexpression elimination, so a grid of a million points costs one
-pass of numpy arithmetic. Parameters not given are held at their nominal value.
+The functions are those of the emitted Python module (shared subexpressions
+computed once), so a grid of a million points costs one pass of numpy
+arithmetic, and a schedule evaluates exactly the code a user ships.
+Parameters not given are held at their nominal value.
 
 >>> import numpy as np, sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -29,7 +30,7 @@ from typing import Callable
 import numpy as np
 import sympy as sp
 
-from ..numeric import lambdify
+from .numeric import lambdify
 
 from ..design import Design, gain_labels
 from ..errors import DesignError, ModelError, Where
@@ -73,15 +74,20 @@ def gain_entries(design: Design) -> list[GainEntry]:
 
 
 class GainEvaluator:
-    """All gains (and the validity conditions) compiled once for numpy arrays.
+    """All gains (and the validity conditions) of a design, for numpy arrays.
 
-    ``evaluator(values)`` takes a dict name -> float or array (missing names at
-    nominal) and returns ``(gains, valid)``: an array of shape
+    The arithmetic is the emitted Python module's (:func:`symgain.emit.python.python_module`,
+    run in memory): schedules, lookup tables and the generated code evaluate the same text,
+    with the same validity rule. ``evaluator(values)`` takes a dict name -> float or array
+    (missing names at nominal) and returns ``(gains, valid)``: an array of shape
     ``(n_gains, *broadcast_shape)`` and a boolean array that is False where a
     ``valid_when`` condition fails or a gain is not a finite real number.
     """
 
-    def __init__(self, design: Design, tol: float = 1e-9):
+    def __init__(self, design: Design):
+        from ..emit.common import PYTHON_RESERVED, design_functions, mangle
+        from ..emit.python import python_module
+
         model = design.model
         self.design = design
         self.entries = gain_entries(design)
@@ -93,24 +99,17 @@ class GainEvaluator:
                               + "; fix them before sweeping", where=Where(model.source))
         self.names = [p.name for p in model.parameters]
         self.nominal = model.nominal_values()
-        args = [p.symbol for p in model.parameters]
-        self._gains = lambdify(args, [e.expr for e in self.entries], modules="numpy", cse=True)
         self.conditions = list(design.valid_when)
-        self.tol = tol
-        self._conditions = []
-        for cond in self.conditions:
-            if isinstance(cond, sp.Ne):
-                f = sp.expand(cond.lhs - cond.rhs)
-                terms = list(sp.Add.make_args(f))
-                self._conditions.append(("ne", lambdify(args, [f, *terms], modules="numpy", cse=True)))
-            else:
-                self._conditions.append(("rel", lambdify(args, cond, modules="numpy")))
+        self._keyword = {name: mangle(name, PYTHON_RESERVED) for name in self.names}
+        namespace: dict = {}
+        exec(compile(python_module(design), f"<gains of {model.name}>", "exec"), namespace)
+        self._functions = [(namespace[fn.name], fn.shape) for fn in design_functions(design)]
 
-    def _args(self, values: dict) -> list:
+    def _args(self, values: dict) -> dict[str, np.ndarray]:
         unknown = set(values) - set(self.names)
         if unknown:
             raise ModelError(f"unknown parameter {sorted(unknown)[0]!r}; declared: {', '.join(self.names)}")
-        args = []
+        args = {}
         for name in self.names:
             if name in values:
                 value = values[name]
@@ -118,60 +117,35 @@ class GainEvaluator:
                     raise ModelError(f"parameter {name!r} must be a number or an array of numbers, "
                                      f"found {type(value).__name__}")
                 try:
-                    args.append(np.asarray(value, dtype=float))
+                    args[self._keyword[name]] = np.asarray(value, dtype=float)
                 except (TypeError, ValueError):
                     raise ModelError(f"parameter {name!r} must be a number or an array of numbers") from None
             elif name in self.nominal:
-                args.append(np.asarray(self.nominal[name], dtype=float))
+                args[self._keyword[name]] = np.asarray(self.nominal[name], dtype=float)
             else:
                 raise ModelError(f"parameter {name!r} has no nominal value", where=Where(key=f"parameters.{name}"))
         return args
 
     def __call__(self, values: dict) -> tuple[np.ndarray, np.ndarray]:
         args = self._args(values)
-        shape = np.broadcast_shapes(*(a.shape for a in args))
+        shape = np.broadcast_shapes(*(a.shape for a in args.values()))
         with np.errstate(all="ignore"):
-            raw = self._gains(*args)
-            gains = np.empty((len(self.entries), *shape), dtype=float)
-            finite = np.ones(shape, dtype=bool)
-            for k, value in enumerate(raw):
-                value = np.broadcast_to(np.asarray(value), shape)
-                if np.iscomplexobj(value):
-                    real = np.abs(value.imag) <= 1e-9 * np.maximum(1.0, np.abs(value.real))
-                    finite &= real
-                    value = value.real
-                gains[k] = value
-                finite &= np.isfinite(value)
-            valid = finite & self.conditions_hold(args, shape)
-        return gains, valid
-
-    def conditions_hold(self, args, shape) -> np.ndarray:
-        """True where every ``valid_when`` condition holds (round-off zeros count as zero)."""
-        ok = np.ones(shape, dtype=bool)
-        for kind, func in self._conditions:
-            if kind == "ne":
-                f, *terms = (np.broadcast_to(np.abs(np.asarray(v)), shape) for v in func(*args))
-                scale = np.maximum.reduce([np.ones(shape), *terms])
-                ok &= f > self.tol * scale
-            else:
-                ok &= np.broadcast_to(np.asarray(func(*args), dtype=bool), shape)
-        return ok
+            blocks = [func(**args, on_invalid="nan").reshape(shape + (rows * cols,))
+                      for func, (rows, cols) in self._functions]
+        gains = np.moveaxis(np.concatenate(blocks, axis=-1), -1, 0)
+        return gains, np.isfinite(gains).all(axis=0)
 
     def failed_conditions(self, point: dict) -> list[str]:
         """The conditions that fail at one point, as text (for the table's reason column)."""
         args = self._args(point)
         failed = []
-        for cond, (kind, func) in zip(self.conditions, self._conditions):
-            if not self._one_holds(kind, func, args):
-                failed.append(sp.sstr(cond))
-        return failed
-
-    def _one_holds(self, kind, func, args) -> bool:
         with np.errstate(all="ignore"):
-            if kind == "ne":
-                f, *terms = (abs(complex(v)) for v in func(*args))
-                return f > self.tol * max([1.0, *terms])
-            return bool(func(*args))
+            for func, _ in self._functions:
+                try:
+                    func(**args)
+                except ValueError as error:
+                    failed.append(str(error).split("condition ", 1)[-1].split(" fails", 1)[0])
+        return list(dict.fromkeys(failed))
 
 
 def gain_functions(design: Design) -> dict[str, Callable[..., np.ndarray]]:

@@ -31,7 +31,7 @@ import numpy as np
 
 from ..design import Design
 from ..errors import ModelError, Where, printable
-from ..model import _shown
+from ..model.definition import _shown
 from ..model import Model
 from .evaluate import GainEntry, GainEvaluator
 

@@ -9,7 +9,7 @@ interpolation in numpy; the tests compile the C and compare.
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.design import derive
->>> from symgain.sweep.schedule import compute_schedule, parse_axis
+>>> from symgain.analysis.schedule import compute_schedule, parse_axis
 >>> m = Parameter.declare("m", sign="positive", range=(1, 3))
 >>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
 ...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
@@ -28,11 +28,11 @@ from dataclasses import dataclass
 import numpy as np
 import sympy as sp
 
-from ..emit.common import mangle
-from ..emit.escape import c_comment
-from ..identifiers import C_RESERVED
-from .evaluate import GainEvaluator
-from .schedule import GridAxis, Schedule
+from ..analysis.evaluate import GainEvaluator
+from ..analysis.schedule import GridAxis, Schedule
+from ..model.identifiers import C_RESERVED
+from .common import mangle
+from .escape import c_comment
 
 __all__ = ["InterpolationError", "interpolate", "interpolation_errors", "lookup_table_c", "REFINE"]
 

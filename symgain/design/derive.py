@@ -1,0 +1,84 @@
+"""Derive every part a model asks for: feedback, estimator, integral action, feedforward.
+
+``derive(model) -> Design`` is pure: every consumer (terminal, JSON, code,
+report, checks) reads the one :class:`Design` object it returns.
+
+>>> import sympy as sp
+>>> from symgain.model import Model, Parameter, TargetSpec
+>>> m = Parameter.declare("m", sign="positive", range=(1, 2))
+>>> w = Parameter.declare("w", sign="positive", range=(1, 3), role="design")
+>>> model = Model(name="cart", parameters=(m, w), states=("p", "v"), inputs=("F",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+...               feedback=TargetSpec("poles", {"poles": (-w.symbol, -w.symbol)}))
+>>> design = derive(model)
+>>> design.feedback.gain
+Matrix([[m*w**2, 2*m*w]])
+>>> design.feedback.valid_when
+()
+>>> [step.name for step in design.feedback.steps]
+['closed_loop_matrix', 'open_loop_polynomial', 'characteristic_polynomial', 'target_polynomial', 'coefficient_equations', 'solution', 'controllability_determinant', 'valid_when']
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+
+import sympy as sp
+
+from ..errors import DesignError, ModelError, Where
+from ..guard import stage
+from ..model import Model, TargetSpec
+from .estimator import design_estimator
+from .feedforward import design_feedforward
+from .integral_action import design_integral
+from .result import Design
+from .several_inputs import design_several_inputs
+from .single_input import design_gain
+from .targets import target_warnings
+
+__all__ = ["derive"]
+
+
+def derive(model: Model) -> Design:
+    """Derive every part the model asks for (a gain that comes out infinite is an error)."""
+    if not isinstance(model, Model):
+        raise ModelError(f"derive needs a Model (from load_model, Model or model_from_matrices), "
+                         f"found {type(model).__name__}")
+    stage("derive", f"{model.n_states} states, {model.n_inputs} inputs, {len(model.parameters)} parameters")
+    avoid = set(model.symbols)
+    feedback = estimator = integral = feedforward = None
+    if model.feedback is not None:
+        stage("derive: feedback gain")
+        spec = model.feedback
+        if model.pattern is not None and "pattern" not in spec.values:
+            spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
+        if model.n_inputs == 1 and "pattern" not in spec.values:
+            feedback = design_gain(model.A, model.B, spec, part="feedback", symbol="K",
+                                   states=model.states, avoid=avoid)
+        else:
+            feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
+                                             states=model.states, inputs=model.inputs, avoid=avoid,
+                                             symbols=model.symbols)
+    if model.estimator is not None:
+        stage("derive: estimator gain")
+        estimator = design_estimator(model, avoid, feedback)
+    if model.integral is not None:
+        stage("derive: integral action")
+        integral = design_integral(model, avoid)
+    if model.feedforward:
+        stage("derive: reference feedforward")
+        feedforward = design_feedforward(model, feedback, integral)
+    stage("after the derivation")
+    design = Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
+                    feedforward=feedforward)
+    _refuse_infinite(design)
+    return replace(design, warnings=tuple(target_warnings(design)))
+
+
+def _refuse_infinite(design: Design) -> None:
+    """A gain that is infinite or undefined for every parameter value is an error, never a result."""
+    for part in design.parts():
+        matrices = [part.gain] + [v for v in part.extra.values() if isinstance(v, sp.MatrixBase)]
+        for mat in matrices:
+            if any(e.has(sp.zoo, sp.oo, -sp.oo, sp.nan) for e in mat):
+                raise DesignError(f"{part.part}: the gain comes out infinite or undefined (a target value "
+                                  "or a plant entry makes a denominator zero)", where=Where(design.model.source))
