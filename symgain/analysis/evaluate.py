@@ -30,7 +30,6 @@ from typing import Callable
 import numpy as np
 import sympy as sp
 
-from .numeric import lambdify
 
 from ..design import Design, gain_labels
 from ..errors import DesignError, ModelError, Where

@@ -53,7 +53,7 @@ ENVIRONMENTS = ("bmatrix", "pmatrix", "matrix")
 
 MAX_LATEX_LENGTH = 2_500  # characters: the LaTeX parser needs about 2.5 ms per character
 MAX_LATEX_DEPTH = 12  # groups ({ }, ( ), [ ]) inside one another: the parser slows down steeply
-MAX_SUPERSCRIPT_DEPTH = 2  # superscripts inside superscripts (x^{y^{2}} is 2 deep)
+MAX_SUPERSCRIPT_DEPTH = 4  # superscripts inside superscripts (x^{y^{2}} is 2 deep); 10 deep take seconds
 
 _GREEK = ("alpha beta gamma delta epsilon varepsilon zeta eta theta vartheta iota kappa lambda mu nu "
           "xi rho varrho sigma tau upsilon phi varphi chi psi omega Gamma Delta Theta Lambda Xi Sigma "
@@ -130,10 +130,10 @@ def _check_commands(text: str, where: Where | None) -> None:
 def _check_size(text: str, where: Where | None) -> None:
     r"""Bound nesting, superscript nesting and number literals before the parser sees the text.
 
-    >>> _check_size(r"\begin{matrix} x^{x^{x^{2}}} \end{matrix}", None)
+    >>> _check_size(r"\begin{matrix} x^{x^{x^{x^{x^{2}}}}} \end{matrix}", None)
     Traceback (most recent call last):
     ...
-    symgain.errors.ModelError: superscripts nest 3 deep in the LaTeX matrix (limit 2)
+    symgain.errors.ModelError: superscripts nest 5 deep in the LaTeX matrix (limit 4)
     """
     stack: list[bool] = []  # True for a group that is a superscript
     previous = ""
