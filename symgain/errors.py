@@ -1,4 +1,4 @@
-"""Errors raised by symgain.
+r"""Errors raised by symgain.
 
 Every error is a :class:`SymgainError` (a ``ValueError``). It carries *where*
 the problem is (file, key, row and column of a matrix entry) and *what* was
@@ -13,6 +13,14 @@ True
 The command line prints ``str(err)`` and exits with code 2 for input errors, and
 with code 4 for a :class:`ClosedFormLimitation` (a well-posed design that has
 no readable closed form).
+Whatever text an error echoes is made printable and bounded: control
+characters (newline, NUL, escape, direction marks) are written as escapes,
+and a line longer than :data:`MAX_MESSAGE` characters is cut:
+
+>>> print(ModelError("unknown key 'a\nb\x00'"))
+unknown key 'a b\x00'
+>>> len(str(ModelError("y" * 5000))) <= MAX_MESSAGE
+True
 """
 from __future__ import annotations
 
@@ -27,7 +35,40 @@ __all__ = [
     "NotControllableError",
     "OutputError",
     "ClosedFormLimitation",
+    "printable",
+    "MAX_MESSAGE",
 ]
+
+MAX_MESSAGE = 300  # characters of one error line (offending texts are echoed shorter still)
+MAX_PLACE = 100  # characters of a file name or key in the place prefix
+
+
+def _escaped(ch: str) -> str:
+    code = ord(ch)
+    if ch == "\n":
+        return "\\n"
+    if ch in "\t\r\v\f":
+        return " "
+    if code < 32 or code == 127:
+        return f"\\x{code:02x}"
+    if (0x80 <= code < 0xA0 or 0x200B <= code <= 0x200F or 0x202A <= code <= 0x202E
+            or 0x2066 <= code <= 0x2069 or code in (0x2028, 0x2029, 0xFEFF)):
+        return f"\\u{code:04x}"  # C1 controls, zero-width and direction marks
+    return ch
+
+
+def printable(text, limit: int | None = None) -> str:
+    r"""*text* as one printable line: control characters escaped, cut to *limit* characters.
+
+    >>> print(printable("a\nb\x00c\u202e"))
+    a\nb\x00c\u202e
+    >>> printable("abcdefghij", 8)
+    'abcde...'
+    """
+    line = "".join(_escaped(ch) for ch in str(text))
+    if limit is not None and len(line) > limit:
+        line = line[: max(limit - 3, 0)] + "..."
+    return line
 
 
 @dataclass(frozen=True)
@@ -57,9 +98,9 @@ class Where:
     def __str__(self) -> str:
         parts = []
         if self.file:
-            parts.append(str(self.file))
+            parts.append(printable(self.file, MAX_PLACE))
         if self.key:
-            key = self.key
+            key = printable(self.key, MAX_PLACE)
             if self.row is not None:
                 key += f"[{self.row}]"
             if self.col is not None:
@@ -72,13 +113,13 @@ class SymgainError(ValueError):
     """Root of all symgain errors; ``str()`` is a single line."""
 
     def __init__(self, what: str, *, where: Where | None = None):
-        self.what = " ".join(str(what).split())  # always one line
-        self.where = where or Where()
+        self.what = printable(" ".join(str(what).split()), MAX_MESSAGE)  # one line
+        self.where = where if isinstance(where, Where) else Where()
         super().__init__(self.what)
 
     def __str__(self) -> str:
         place = str(self.where)
-        return f"{place}: {self.what}" if place else self.what
+        return printable(f"{place}: {self.what}" if place else self.what, MAX_MESSAGE)
 
 
 class ModelError(SymgainError):

@@ -104,7 +104,8 @@ def test_condition_error_code_and_untouched_matrix(tmp_path):
     assert "int odd_feedback_gain(double lambda, double int_p, double omega_n, double K[1][2]);" in header
     assert "returns 1 when int == 0" in header
     assert "int -> int_p" in header
-    assert "lambda: cart mass [kg], range [1, 2]" in header
+    assert "lambda: cart mass [kg], > 0, range [1, 2]" in header
+    assert "returns -1 when lambda is not finite and > 0" in header
 
 
 def test_cse_locals_and_single_precision_literals(tmp_path):

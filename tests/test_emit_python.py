@@ -51,7 +51,7 @@ def test_broadcasting_and_docstring(tmp_path):
     single = module.feedback_gain(m=float(m[2, 0]), c=2.0, tau=0.01, w=float(w[0, 1]))
     np.testing.assert_allclose(out[2, 1], single, rtol=1e-15)
     doc = module.feedback_gain.__doc__
-    for fragment in ("K[0, 0] = m*tau*w**3", "m [kg]: belt plus parcels mass; range [5, 40]", "Valid when"):
+    for fragment in ("K[0, 0] = m*tau*w**3", "m [kg]: belt plus parcels mass; > 0, range [5, 40]", "Valid when"):
         assert fragment in doc
     with pytest.raises(TypeError):  # keyword-only arguments
         module.feedback_gain(12.0, 2.0, 0.01, 5.0)

@@ -193,7 +193,7 @@ def test_large_but_bounded_numbers_are_kept():
         ("m/(c - c)", "division by zero"),
         ("0^-2", "division by zero"),
         ("log(0)", "no finite value"),
-        ("(10^399)^1000", "10000 digits"),
+        ("(10^399)^1000", "4000 digits"),
         ("(m + 1)^1001", "exponent 1001"),
         ("1e-400", "digits"),
         ("x" * 20_000, "too long"),

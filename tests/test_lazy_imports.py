@@ -34,6 +34,13 @@ def test_cli_tolerance_default_matches_the_check():
     assert CLI_DEFAULT == DEFAULT_TOLERANCE
 
 
+def test_cli_points_limit_matches_the_check():
+    from symgain.analysis.check import MAX_POINTS
+    from symgain.cli.core import MAX_POINTS as CLI_MAX
+
+    assert CLI_MAX == MAX_POINTS
+
+
 def test_cli_forms_match_the_design_stage():
     from symgain.cli.core import FORMS
     from symgain.design.single_input import FORMS as DESIGN_FORMS

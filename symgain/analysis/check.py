@@ -19,6 +19,7 @@ symbolic derivation: it is a second opinion, not the same code run twice.
 """
 from __future__ import annotations
 
+import math
 import warnings
 import zlib
 from dataclasses import dataclass, field, replace
@@ -28,16 +29,22 @@ import scipy.signal
 import sympy as sp
 
 from ..design import Design, GainDesign
-from ..errors import ModelError, Where
-from ..model import S, Model
 from ..design.validity import holds_at
 from .check_points import (CheckReport, PointResult, _distinct, _normalized_error, _real, sample_points,
                            steady_state_error)
+from ..errors import DesignError, ModelError, Where, printable
+from ..model import S, Model
+from .numeric import lambdify
 
 __all__ = ["PointResult", "CheckReport", "sample_points", "check_design", "DEFAULT_TOLERANCE",
            "closed_loop_matrix", "augmented_matrices", "steady_state_error"]
 
 DEFAULT_TOLERANCE = 1e-6
+MAX_POINTS = 100_000  # sampled points of one check
+#: The gain is compared with scipy only where the closed loop's eigenvector matrix has a
+#: condition number below this bound divided by machine precision times the tolerance
+#: (beyond it, a correct placement may differ from scipy's gain by more than the tolerance).
+CONDITION_FACTOR = 1e-2
 
 
 def augmented_matrices(A, B, C, D=None):
@@ -92,6 +99,12 @@ def _free_values(free, seed: int, idx: int) -> dict:
             for g in free}
 
 
+def _value(func, args):
+    """``func(*args)`` as a real array, or None where it is not finite and real (1/0 included)."""
+    try:
+        return _real(func(*args))
+    except (ZeroDivisionError, OverflowError, ValueError, TypeError):
+        return None
 def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 0,
                 feedback: GainDesign | None = None) -> list[PointResult]:
     order = [p.name for p in model.parameters]
@@ -114,7 +127,7 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
     results = []
     n = model.n_states
     for idx, point in enumerate(points):
-        args = [point[name] for name in order]
+        args = [float(point[name]) for name in order]
         fvals = _free_values(free, seed, idx)
         fargs = args + [fvals[g] for g in free]
         values = {p.symbol: point[p.name] for p in model.parameters} | fvals
@@ -126,12 +139,14 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
             results.append(PointResult(idx, point, "skipped", None, None, "fails " + ", ".join(failed)))
             continue
         with np.errstate(all="ignore"):
-            A = np.array(f_A(*args), dtype=float)
-            B = np.array(f_B(*args), dtype=float)
-            C = np.array(f_C(*args), dtype=float) if f_C else None
-            D = np.array(f_D(*args), dtype=float) if f_D else None
-            gain = _real(f_gain(*fargs))
-            K = _real(f_K(*fargs)) if f_K else None
+            plant = [_value(f, args) if f else None for f in (f_A, f_B, f_C, f_D)]
+            if any(m is None for m, f in zip(plant, (f_A, f_B, f_C, f_D)) if f):
+                results.append(PointResult(idx, point, "skipped", None, None,
+                                           "the plant matrices are not finite and real here"))
+                continue
+            A, B, C, D = plant
+            gain = _value(f_gain, fargs)
+            K = _value(f_K, fargs) if f_K else None
         if gain is None or (f_K is not None and K is None):
             results.append(PointResult(idx, point, "fail", None, None, "gain is not finite and real here"))
             continue
@@ -159,15 +174,50 @@ def _check_part(model: Model, part: GainDesign, points, tol: float, seed: int = 
                 ref = None
             if ref is not None:
                 gain_err = float(np.max(np.abs(ref - gain)) / max(np.max(np.abs(ref)), 1e-300))
-        bad = cl_err > tol or (gain_err is not None and gain_err > tol)
+        note = ""
+        if gain_err is not None and gain_err > tol:
+            kappa = _eigenvector_condition(closed)
+            if kappa * np.finfo(float).eps > CONDITION_FACTOR * tol:
+                note = f"gain not compared: ill-conditioned placement (eigenvector condition {kappa:.1e})"
+                gain_err = None
+        bad = not cl_err <= tol or (gain_err is not None and gain_err > tol)
         results.append(PointResult(idx, point, "fail" if bad else "ok", gain_err, cl_err,
-                                   f"error above tolerance {tol:g}" if bad else ""))
+                                   f"error above tolerance {tol:g}" if bad else note))
     return results
+
+
+def _eigenvector_condition(closed) -> float:
+    """Condition number of the eigenvector matrix of the closed loop (inf when defective)."""
+    try:
+        _, vectors = np.linalg.eig(closed)
+        return float(np.linalg.cond(vectors))
+    except np.linalg.LinAlgError:
+        return float("inf")
 
 
 def check_design(design: Design, n_points: int = 20, seed: int = 0,
                  tolerance: float = DEFAULT_TOLERANCE) -> CheckReport:
-    """Check every part of a design at ``n_points`` sampled points (nominal first)."""
+    """Check every part of a design at ``n_points`` sampled points (nominal first).
+
+    A check that would prove nothing is refused (:class:`~symgain.errors.DesignError`
+    or :class:`~symgain.errors.ModelError`): no points, a tolerance that is not a
+    positive finite number, or a part whose every point is skipped.
+    """
+    if not isinstance(design, Design):
+        raise ModelError(f"check_design needs a Design (from derive), found {type(design).__name__}")
+    if isinstance(n_points, bool) or not isinstance(n_points, (int, np.integer)) \
+            or not 1 <= n_points <= MAX_POINTS:
+        raise ModelError(f"points must be a whole number from 1 to {MAX_POINTS}, found "
+                         f"{printable(repr(n_points), 30)}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed < 2**63:
+        raise ModelError(f"seed must be a whole number from 0 to 2**63 - 1, found {printable(repr(seed), 30)}")
+    if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float, np.floating)) \
+            or not math.isfinite(tolerance) or not tolerance > 0:
+        raise ModelError(f"tolerance must be a positive finite number, found {printable(repr(tolerance), 30)}")
+    from ..guard import stage
+
+    stage("numeric check", f"{n_points} points")
+    n_points, seed, tolerance = int(n_points), int(seed), float(tolerance)
     if design.sampled is not None:  # sampled-data designs: Phi, Gamma and gains in z
         from .check_sampled import check_sampled_design
 
@@ -177,7 +227,12 @@ def check_design(design: Design, n_points: int = 20, seed: int = 0,
     for part in design.parts():
         if part.target is None and part.part != "feedforward":
             continue
-        report.points[part.part] = _check_part(design.model, part, points, tolerance, seed, design.feedback)
+        results = _check_part(design.model, part, points, tolerance, seed, design.feedback)
+        if not any(r.status != "skipped" for r in results):
+            raise DesignError(f"{part.part}: every one of the {len(results)} points was skipped ("
+                              f"{results[0].reason}); nothing was checked",
+                              where=Where(design.model.source))
+        report.points[part.part] = results
         shown = part.selected_branch or 1
         for b in part.branches:  # every other solution branch is checked on its own
             if b.index == shown:

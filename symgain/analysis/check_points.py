@@ -34,7 +34,9 @@ class CheckReport:
 
     @property
     def passed(self) -> bool:
-        return all(p.status != "fail" for pts in self.points.values() for p in pts)
+        """No point failed and every part had at least one point actually checked."""
+        return all(p.status != "fail" for pts in self.points.values() for p in pts) and all(
+            any(p.status == "ok" for p in pts) for pts in self.points.values())
 
     def counts(self, part: str) -> dict[str, int]:
         out = {"ok": 0, "fail": 0, "skipped": 0}
@@ -92,7 +94,10 @@ def _distinct(roots, rel=1e-3) -> bool:
 
 
 def _real(x):
-    x = np.array(x, dtype=complex)
+    try:
+        x = np.array(x, dtype=complex)
+    except (TypeError, ValueError, ZeroDivisionError, OverflowError):
+        return None
     if not np.all(np.isfinite(x)) or np.max(np.abs(x.imag), initial=0) > 1e-9 * max(1.0, np.max(np.abs(x))):
         return None
     return x.real

@@ -30,6 +30,7 @@ from typing import Callable
 import numpy as np
 import sympy as sp
 
+
 from ..design import Design, gain_labels
 from ..errors import DesignError, ModelError, Where
 
@@ -67,7 +68,7 @@ def gain_entries(design: Design) -> list[GainEntry]:
                 for j in range(mat.cols):
                     ident = re.sub(r"\W", "_", f"{symbol}_{rl[i]}_{cl[j]}")
                     out.append(GainEntry(part.part, symbol, i, j, f"{symbol}[{rl[i]},{cl[j]}]",
-                                         ident, sp.sympify(mat[i, j])))
+                                         ident, sp.sympify(mat[i, j], strict=True)))
     return out
 
 
@@ -112,7 +113,14 @@ class GainEvaluator:
         args = {}
         for name in self.names:
             if name in values:
-                args[self._keyword[name]] = np.asarray(values[name], dtype=float)
+                value = values[name]
+                if isinstance(value, (str, bytes, bool)):
+                    raise ModelError(f"parameter {name!r} must be a number or an array of numbers, "
+                                     f"found {type(value).__name__}")
+                try:
+                    args[self._keyword[name]] = np.asarray(value, dtype=float)
+                except (TypeError, ValueError):
+                    raise ModelError(f"parameter {name!r} must be a number or an array of numbers") from None
             elif name in self.nominal:
                 args[self._keyword[name]] = np.asarray(self.nominal[name], dtype=float)
             else:

@@ -25,6 +25,7 @@ import sympy as sp
 from ..design import Design
 from ..errors import DesignError, ModelError, Where
 from ..model import S
+from .numeric import lambdify
 
 __all__ = ["routh_hurwitz", "hurwitz_determinants", "positive_part", "MismatchAnalysis",
            "analyze_mismatch", "stable_ratio_set", "RatioRange", "ratio_ranges", "cross_check",
@@ -41,7 +42,7 @@ def hurwitz_determinants(coeffs) -> list[sp.Expr]:
     >>> hurwitz_determinants([1, a, b, c])
     [a, a*b - c, a*b*c - c**2]
     """
-    c = [sp.sympify(x) for x in coeffs]
+    c = [sp.sympify(x, strict=True) for x in coeffs]
     n = len(c) - 1
     def at(k):
         return c[k] if 0 <= k <= n else sp.Integer(0)
@@ -61,7 +62,7 @@ def routh_hurwitz(coeffs) -> list[sp.Expr]:
     >>> routh_hurwitz([a[4], a[3], a[2], a[1], a[0]])[5:]
     [-a1*a4 + a2*a3, -a0*a3**2 - a1**2*a4 + a1*a2*a3]
     """
-    c = [sp.sympify(x) for x in coeffs]
+    c = [sp.sympify(x, strict=True) for x in coeffs]
     n = len(c) - 1
     if n < 1:
         raise DesignError("the Routh-Hurwitz criterion needs a polynomial of degree 1 or more")
@@ -220,7 +221,7 @@ class _RatioPolys:
         self.funcs = []
         for cond in analysis.conditions:
             coeffs = sp.Poly(sp.expand(cond), r).all_coeffs()
-            self.funcs.append(sp.lambdify(self.symbols, coeffs, modules="numpy"))
+            self.funcs.append(lambdify(self.symbols, coeffs, modules="numpy"))
 
     def __call__(self, values: dict[str, float]) -> list[tuple[float, float]]:
         subs = self.analysis.substitutions(values, {})
@@ -310,9 +311,9 @@ class ClosedLoop:
         model = design.model
         self.names = [p.name for p in model.parameters]
         args = [p.symbol for p in model.parameters]
-        self._A = sp.lambdify(args, model.A, modules="numpy")
-        self._B = sp.lambdify(args, model.B, modules="numpy")
-        self._K = sp.lambdify(args, design.feedback.gain, modules="numpy")
+        self._A = lambdify(args, model.A, modules="numpy")
+        self._B = lambdify(args, model.B, modules="numpy")
+        self._K = lambdify(args, design.feedback.gain, modules="numpy")
 
     def __call__(self, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:
         true = [true_values[n] for n in self.names]
@@ -333,7 +334,7 @@ def cross_check(analysis: MismatchAnalysis, n_points: int = 200, seed: int = 0, 
     model = analysis.design.model
     rng = np.random.default_rng(seed)
     names = [p.name for p in model.parameters]
-    funcs = [sp.lambdify(list(analysis.substitutions({n: 0 for n in names}, {}).keys()), c, "numpy")
+    funcs = [lambdify(list(analysis.substitutions({n: 0 for n in names}, {}).keys()), c, "numpy")
              for c in analysis.conditions]
     loop = ClosedLoop(analysis.design)
     counts = {"points": 0, "agree": 0, "disagree": 0, "marginal": 0, "stable": 0}

@@ -30,13 +30,17 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..design import Design
-from ..errors import ModelError, Where
+from ..errors import ModelError, Where, printable
+from ..model.definition import _shown
 from ..model import Model
 from .evaluate import GainEntry, GainEvaluator
 
-__all__ = ["GridAxis", "Schedule", "parse_axis", "compute_schedule", "schedule_csv", "DEFAULT_POINTS"]
+__all__ = ["GridAxis", "Schedule", "parse_axis", "compute_schedule", "schedule_csv", "DEFAULT_POINTS",
+           "MAX_AXIS_POINTS", "MAX_GRID_POINTS"]
 
 DEFAULT_POINTS = 11
+MAX_AXIS_POINTS = 100_000  # grid points along one scheduled parameter
+MAX_GRID_POINTS = 40_000  # grid points of a two-parameter schedule (the error grid is 64 times finer)
 
 
 @dataclass(frozen=True)
@@ -49,7 +53,9 @@ class GridAxis:
 
     @property
     def label(self) -> str:
-        return f"{self.name} [{self.unit}]" if self.unit else self.name
+        from ..emit.escape import csv_text
+
+        return csv_text(f"{self.name} [{self.unit}]" if self.unit else self.name)
 
 
 @dataclass
@@ -74,21 +80,23 @@ def _number(text: str, where: Where) -> float:
     try:
         value = float(text)
     except ValueError:
-        raise ModelError(f"expected a number, found {text!r}", where=where) from None
-    if not np.isfinite(value):
-        raise ModelError(f"expected a finite number, found {text!r}", where=where)
+        raise ModelError(f"expected a number, found {_shown(text)}", where=where) from None
+    if not np.isfinite(value) or abs(value) > 1e300:
+        raise ModelError(f"expected a finite number, found {_shown(text)}", where=where)
     return value
 
 
 def parse_axis(text: str, model: Model) -> GridAxis:
     """``NAME=LOW:HIGH:COUNT``, ``NAME=LOW:HIGH`` or ``NAME`` (declared range, 11 points)."""
-    where = Where(key=f"--over {text}")
+    if not isinstance(text, str):
+        raise ModelError(f"a grid is text such as 'm=1:2:11', found {type(text).__name__}")
+    where = Where(key=f"--over {printable(text, 60)}")
     name, _, spec = text.partition("=")
     name = name.strip()
     try:
         param = model.parameter(name)
     except KeyError:
-        raise ModelError(f"unknown parameter {name!r}; declared: "
+        raise ModelError(f"unknown parameter {_shown(name)}; declared: "
                          + ", ".join(p.name for p in model.parameters), where=where) from None
     pieces = [p.strip() for p in spec.split(":")] if spec else []
     if len(pieces) not in (0, 2, 3):
@@ -102,14 +110,17 @@ def parse_axis(text: str, model: Model) -> GridAxis:
     count = DEFAULT_POINTS
     if len(pieces) == 3:
         try:
-            count = int(pieces[2])
+            count = int(pieces[2]) if len(pieces[2]) <= 12 else MAX_AXIS_POINTS + 1
         except ValueError:
-            raise ModelError(f"COUNT must be an integer, found {pieces[2]!r}", where=where) from None
-    if count < 2:
-        raise ModelError(f"COUNT must be at least 2, found {count}", where=where)
+            raise ModelError(f"COUNT must be an integer, found {_shown(pieces[2])}", where=where) from None
+    if count < 2 or count > MAX_AXIS_POINTS:
+        raise ModelError(f"COUNT must be at least 2 and at most {MAX_AXIS_POINTS}, found {_shown(pieces[2])}", where=where)
     if not low < high:
         raise ModelError(f"LOW must be below HIGH, found {low:g}:{high:g}", where=where)
-    return GridAxis(name, np.linspace(low, high, count), param.unit)
+    values = np.linspace(low, high, count)
+    if not np.all(np.diff(values) > 0) or not np.isfinite(values[-1] - values[0]):
+        raise ModelError(f"the grid {low:g}:{high:g}:{count} is not resolvable in floating point", where=where)
+    return GridAxis(name, values, param.unit)
 
 
 def compute_schedule(design: Design, axes: list[GridAxis], *, evaluator: GainEvaluator | None = None,
@@ -122,6 +133,9 @@ def compute_schedule(design: Design, axes: list[GridAxis], *, evaluator: GainEva
         raise ModelError(f"a schedule runs over one or two parameters, found {len(axes)}")
     if len(axes) == 2 and axes[0].name == axes[1].name:
         raise ModelError(f"parameter {axes[0].name!r} is scheduled twice")
+    if len(axes) == 2 and axes[0].values.size * axes[1].values.size > MAX_GRID_POINTS:
+        raise ModelError(f"a two-parameter grid of {axes[0].values.size} x {axes[1].values.size} points; at "
+                         f"most {MAX_GRID_POINTS} points in all")
     evaluator = evaluator or GainEvaluator(design)
     mesh = np.meshgrid(*(a.values for a in axes), indexing="ij")
     shape = mesh[0].shape

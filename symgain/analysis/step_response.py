@@ -28,6 +28,8 @@ import numpy as np
 import scipy.signal
 import sympy as sp
 
+from .numeric import lambdify
+
 from ..design import Design
 from ..design.compact import numeric_function
 from ..errors import DesignError, Where
@@ -71,9 +73,9 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
         raise DesignError("step responses are drawn for single-input plants only", where=Where(model.source))
     args = [p.symbol for p in model.parameters]
     names = [p.name for p in model.parameters]
-    f_A, f_B = sp.lambdify(args, model.A, "numpy"), sp.lambdify(args, model.B, "numpy")
+    f_A, f_B = lambdify(args, model.A, "numpy"), lambdify(args, model.B, "numpy")
     C = model.C if model.C is not None else sp.Matrix([[1] + [0] * (model.n_states - 1)])
-    f_C = sp.lambdify(args, C[0, :], "numpy")
+    f_C = lambdify(args, C[0, :], "numpy")
     f_K = numeric_function(args, design.feedback.gain, design.feedback.definitions)
 
     def numeric(point):

@@ -9,6 +9,7 @@ from importlib import resources
 # sympy, scipy and the design stage are imported inside the commands (fast --help)
 
 DEFAULT_TOLERANCE = 1e-6  # the same as symgain.analysis.check.DEFAULT_TOLERANCE (a test keeps them equal)
+MAX_POINTS = 100_000  # the same as symgain.analysis.check.MAX_POINTS
 
 _FMT = argparse.RawDescriptionHelpFormatter
 
@@ -24,10 +25,13 @@ def add_form_option(p) -> None:
 
 
 def _add_check_options(p):
-    p.add_argument("--points", type=int, default=20, metavar="N",
-                   help="parameter points to sample, nominal included (default 20)")
-    p.add_argument("--seed", type=int, default=0, help="random seed for the sampled points (default 0)")
-    p.add_argument("--tolerance", type=float, default=DEFAULT_TOLERANCE,
+    from . import positive_number, whole_number
+
+    p.add_argument("--points", type=whole_number(1, MAX_POINTS), default=20, metavar="N",
+                   help=f"parameter points to sample, nominal included (default 20, at most {MAX_POINTS})")
+    p.add_argument("--seed", type=whole_number(0, 2**32 - 1), default=0,
+                   help="random seed for the sampled points (default 0; 0 to 2^32 - 1)")
+    p.add_argument("--tolerance", type=positive_number, default=DEFAULT_TOLERANCE,
                    help=f"largest accepted relative error (default {DEFAULT_TOLERANCE:g})")
 
 
@@ -61,12 +65,12 @@ def add_to(sub) -> None:
 
 
 def run_derive(args) -> int:
-    from ..design import derive
+    from . import derive_and_warn
     from ..emit.json import design_to_json
     from ..emit.terminal import format_design
     from ..model.toml_file import load_model
 
-    design = derive(load_model(args.model), form=args.form)
+    design = derive_and_warn(load_model(args.model), form=args.form)
     print(design_to_json(design, sensitivity=True if args.sensitivity else None) if args.json else format_design(design), end="" if not args.json else "\n")
     return 0
 
@@ -82,13 +86,13 @@ def _print_check(design, args) -> int:
 
 
 def run_check(args) -> int:
-    from ..design import derive
+    from . import derive_and_warn
     from ..errors import ClosedFormLimitation
     from ..model.toml_file import load_model
 
     model = load_model(args.model)
     try:
-        design = derive(model, form=args.form)
+        design = derive_and_warn(model, form=args.form)
     except ClosedFormLimitation as exc:  # no closed form: check numerically where a pattern allows it
         return _check_numerically(model, exc, args)
     return _print_check(design, args)
@@ -126,14 +130,14 @@ DEMO_FILE = "demo_conveyor.toml"
 
 
 def run_demo(args) -> int:
-    from ..design import derive
+    from . import derive_and_warn
     from ..emit.terminal import format_design
     from ..model.toml_file import model_from_text
 
     text = resources.files("symgain.data").joinpath(DEMO_FILE).read_text(encoding="utf-8")
     start = time.perf_counter()
     model = model_from_text(text, f"<built-in {DEMO_FILE}>")
-    design = derive(model)
+    design = derive_and_warn(model)
     took = time.perf_counter() - start
     print(f"symgain demo: the built-in model '{model.name}' ({model.title}).")
     print(f"Derived the gains in closed form in {took:.2f} s:\n")

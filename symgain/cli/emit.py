@@ -38,12 +38,12 @@ def add_to(sub) -> None:
 
 
 def run_emit(args) -> int:
-    from ..design import derive
+    from . import derive_and_warn
     from ..emit import emit
     from ..errors import ModelError
     from ..model.toml_file import load_model
 
-    design = derive(load_model(args.model), form=args.form)
+    design = derive_and_warn(load_model(args.model), form=args.form)
     sections, figures = None, []
     if args.with_simulation:
         if "latex" not in args.to:

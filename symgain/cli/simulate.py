@@ -104,7 +104,7 @@ def _scenarios(args, model):
 
 
 def run_simulate(args) -> int:
-    from ..design import derive
+    from . import derive_and_warn
     from ..model.toml_file import load_model
     from ..emit.plots import png_bytes
     from ..analysis.simulation.campaign import prepare, run_campaign
@@ -116,7 +116,7 @@ def run_simulate(args) -> int:
     _check_numbers(args)
     model = load_model(args.model)
     scenarios = _scenarios(args, model)
-    design = derive(model)
+    design = derive_and_warn(model)
     folder = prepare_folder(args.output or default_folder(model.name))
     with tempfile.TemporaryDirectory(prefix="symgain-controller-") as module_folder:
         setup = prepare(design, module_folder, scenarios=scenarios, duration=args.duration,

@@ -6,10 +6,13 @@ import sys
 from contextlib import contextmanager
 
 from ..errors import ModelError
+from . import whole_number
 
 # numpy, sympy and the design stage load inside the commands (fast --help)
 
 _FMT = argparse.RawDescriptionHelpFormatter
+MAX_ROBUST_POINTS = 100_000  # eigenvalue cross-check points of robust
+MAX_MISMATCH = 6  # mismatched parameters of robust (the closed-form conditions grow fast)
 
 
 def _common(p, model_help="model file (TOML)"):
@@ -42,9 +45,10 @@ def add_to(sub) -> None:
     _common(p)
     p.add_argument("--mismatch", nargs="+", metavar="NAME", required=True,
                    help="plant parameters whose true value differs from the one the controller assumes")
-    p.add_argument("--points", type=int, default=300, metavar="N",
-                   help="sampled points for the eigenvalue cross-check (default 300)")
-    p.add_argument("--seed", type=int, default=0, help="random seed of the cross-check (default 0)")
+    p.add_argument("--points", type=whole_number(1, MAX_ROBUST_POINTS), default=300, metavar="N",
+                   help=f"sampled points for the eigenvalue cross-check (default 300, at most {MAX_ROBUST_POINTS})")
+    p.add_argument("--seed", type=whole_number(0, 2**32 - 1), default=0,
+                   help="random seed of the cross-check (default 0; 0 to 2^32 - 1)")
     p.set_defaults(run=run_robust)
 
     p = sub.add_parser("sensitivity", help="partial derivatives of the gains and relative sensitivities",
@@ -91,19 +95,19 @@ def run_schedule(args) -> int:
     import numpy as np
     import sympy as sp
 
-    from ..design import derive
+    from . import derive_and_warn
     from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, schedule_figure
     from ..analysis.evaluate import GainEvaluator
     from ..emit.lookup_c import interpolation_errors, lookup_table_c, REFINE
-    from ..emit.files import write_atomic
+    from ..emit.files import write_files
     from ..analysis.schedule import compute_schedule, parse_axis, schedule_csv
 
     model = load_model(args.model)
     axes = [parse_axis(text, model) for text in args.over]
     if len(axes) > 2:
         raise ModelError(f"--over is given {len(axes)} times; a schedule runs over one or two parameters")
-    design = derive(model)
+    design = derive_and_warn(model)
     evaluator = GainEvaluator(design)
     folder = _folder(args, model)
     total = int(np.prod([a.values.size for a in axes]))
@@ -114,9 +118,9 @@ def run_schedule(args) -> int:
         errors = interpolation_errors(schedule, evaluator=evaluator)
         table = schedule_csv(schedule, progress=tick)
         source = lookup_table_c(schedule, errors, progress=tick if len(axes) == 2 else None)
-    written = [write_atomic(folder / f"{base}.csv", table),
-               write_atomic(folder / f"{model.name}_schedule.c", source),
-               write_atomic(folder / f"{base}.png", png_bytes(schedule_figure(schedule)))]
+    figure = png_bytes(schedule_figure(schedule))  # everything rendered before anything is written
+    written = write_files(folder, {f"{base}.csv": table, f"{model.name}_schedule.c": source,
+                                   f"{base}.png": figure})
     invalid = int((~schedule.valid).sum())
     grid = " x ".join(f"{a.name} {a.values[0]:g}..{a.values[-1]:g} ({a.values.size})" for a in axes)
     print(f"schedule of {len(schedule.entries)} gains over {grid}: {schedule.valid.size} points, "
@@ -141,15 +145,19 @@ def run_robust(args) -> int:
     import numpy as np
     import sympy as sp
 
-    from ..design import derive
+    from . import derive_and_warn
     from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, pole_migration_figure
     from ..analysis.robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
     from ..emit.files import write_atomic
 
     model = load_model(args.model)
-    design = derive(model)
-    analysis = analyze_mismatch(design, list(dict.fromkeys(args.mismatch)))
+    design = derive_and_warn(model)
+    mismatch = list(dict.fromkeys(args.mismatch))
+    if len(mismatch) > MAX_MISMATCH:
+        raise ModelError(f"--mismatch names {len(mismatch)} parameters; at most {MAX_MISMATCH} are analysed "
+                         "at once")
+    analysis = analyze_mismatch(design, mismatch)
     folder = _folder(args, model)
     from ..analysis.robust import grid_size
 
@@ -202,13 +210,13 @@ def run_sensitivity(args) -> int:
     import numpy as np
     import sympy as sp
 
-    from ..design import derive
+    from . import derive_and_warn
     from ..model.toml_file import load_model
     from ..analysis.sensitivity import relative_sensitivities, sensitivity_table
     from ..analysis.evaluate import gain_entries
 
     model = load_model(args.model)
-    design = derive(model)
+    design = derive_and_warn(model)
     free = [str(g) for part in design.parts() for g in part.free_gains]
     if free:  # a family of gains: numbers need every gain fixed (as schedules do)
         from ..errors import DesignError, Where
@@ -246,7 +254,7 @@ def run_plot(args) -> int:
     import numpy as np
     import sympy as sp
 
-    from ..design import derive
+    from . import derive_and_warn
     from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, step_figure
     from ..emit.files import write_atomic
@@ -255,7 +263,7 @@ def run_plot(args) -> int:
     if not args.step:
         raise ModelError("choose a figure to draw: --step")
     model = load_model(args.model)
-    design = derive(model)
+    design = derive_and_warn(model)
     folder = _folder(args, model)
     with _progress(len(corner_points(design)), "step responses", args.quiet) as tick:
         runs = step_responses(design, gains=args.gains, progress=tick)

@@ -67,7 +67,7 @@ def rational_atoms(exprs: Iterable[sp.Expr]) -> list[sp.Expr]:
             found[e] = None
 
     for ex in exprs:
-        walk(sp.sympify(ex))
+        walk(sp.sympify(ex, strict=True))
     return list(found)
 
 
@@ -182,7 +182,7 @@ class Field:
     def element(self, expr: sp.Expr) -> Fraction:
         """Convert a rational expression in the atoms into a field element."""
         gens = self._stand_ins
-        expr = sp.sympify(expr).xreplace({a: g for a, g in zip(self.atoms, gens) if a is not g})
+        expr = sp.sympify(expr, strict=True).xreplace({a: g for a, g in zip(self.atoms, gens) if a is not g})
         num, den = sp.fraction(sp.together(expr))  # FLINT cancels the common factors
         return Fraction(self._poly(sp.expand(num), gens), self._poly(sp.expand(den), gens))
 

@@ -327,7 +327,28 @@ def numeric_function(args, exprs, definitions=(), modules="numpy"):
     >>> numeric_function([x], [t * 2], [(t, x + 1)])(2.0)
     [6.0]
     """
+    args = list(args)
+    # arguments renamed first, so that a parameter named ``e`` or ``pi`` is not the printed constant
+    private = [sp.Symbol(f"_arg{i}") for i in range(len(args))]
+    by_name = {str(a): p for a, p in zip(args, private)}
     definitions = list(definitions)
+    free = set()
+    for e in [exprs] + [v for _, v in definitions]:
+        if isinstance(e, (list, tuple)):
+            for x in e:
+                free |= set(getattr(x, "free_symbols", ()))
+        else:
+            free |= set(getattr(e, "free_symbols", ()))
+    mapping = {s: by_name[str(s)] for s in free if str(s) in by_name}
+    mapping.update(zip(args, private))
+
+    def rename(e):
+        if isinstance(e, (list, tuple)):
+            return type(e)(rename(x) for x in e)
+        return e.xreplace(mapping) if isinstance(e, (sp.Basic, sp.MatrixBase)) else e
+
+    exprs = rename(exprs)
+    definitions = [(name, rename(value)) for name, value in definitions]
     if not definitions:
-        return sp.lambdify(args, exprs, modules=modules)
-    return sp.lambdify(args, exprs, modules=modules, cse=lambda e: (definitions, e))
+        return sp.lambdify(private, exprs, modules=modules)
+    return sp.lambdify(private, exprs, modules=modules, cse=lambda e: (definitions, e))

@@ -20,6 +20,12 @@ Matrix([[m*w**2, 2*m*w]])
 """
 from __future__ import annotations
 
+from dataclasses import replace
+
+import sympy as sp
+
+from ..errors import DesignError, ModelError, Where
+from ..guard import stage
 from ..model import Model, TargetSpec
 from .estimator import design_estimator
 from .feedforward import design_feedforward
@@ -27,6 +33,7 @@ from .integral_action import design_integral
 from .result import Design
 from .several_inputs import design_several_inputs
 from .single_input import design_gain
+from .targets import target_warnings
 
 __all__ = ["derive"]
 
@@ -36,16 +43,23 @@ def derive(model: Model, form: str = "auto") -> Design:
 
     ``form`` is how single-input gains are written: "auto" (expanded formulas unless they
     would be large, then the compact form), "expanded" or "compact" (named definitions in
-    order, see :mod:`symgain.design.compact`).
+    order, see :mod:`symgain.design.compact`). A gain that comes out infinite is an error.
     """
+    if not isinstance(model, Model):
+        raise ModelError(f"derive needs a Model (from load_model, Model or model_from_matrices), "
+                         f"found {type(model).__name__}")
+    stage("derive", f"{model.n_states} states, {model.n_inputs} inputs, {len(model.parameters)} parameters")
     if model.sampling is not None:
         from .sampled import derive_sampled
 
-        return derive_sampled(model)
+        design = derive_sampled(model)
+        _refuse_infinite(design)
+        return design
     avoid = set(model.symbols)
     nominal = {p.symbol: p.nominal for p in model.parameters if p.nominal is not None}
     feedback = estimator = integral = feedforward = None
     if model.feedback is not None:
+        stage("derive: feedback gain")
         spec = model.feedback
         if model.pattern is not None and "pattern" not in spec.values:
             spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
@@ -59,11 +73,27 @@ def derive(model: Model, form: str = "auto") -> Design:
     if feedback is not None:  # names of a compact form stay distinct across parts
         avoid |= {str(sym) for sym, _ in feedback.definitions}
     if model.estimator is not None:
+        stage("derive: estimator gain")
         estimator = design_estimator(model, avoid, feedback, form=form, nominal=nominal)
         avoid |= {str(sym) for sym, _ in estimator.definitions}
     if model.integral is not None:
+        stage("derive: integral action")
         integral = design_integral(model, avoid, form=form, nominal=nominal)
     if model.feedforward:
+        stage("derive: reference feedforward")
         feedforward = design_feedforward(model, feedback, integral)
-    return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
-                  feedforward=feedforward)
+    stage("after the derivation")
+    design = Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
+                    feedforward=feedforward)
+    _refuse_infinite(design)
+    return replace(design, warnings=tuple(target_warnings(design)))
+
+
+def _refuse_infinite(design: Design) -> None:
+    """A gain that is infinite or undefined for every parameter value is an error, never a result."""
+    for part in design.parts():
+        matrices = [part.gain] + [v for v in part.extra.values() if isinstance(v, sp.MatrixBase)]
+        for mat in matrices:
+            if any(e.has(sp.zoo, sp.oo, -sp.oo, sp.nan) for e in mat):
+                raise DesignError(f"{part.part}: the gain comes out infinite or undefined (a target value "
+                                  "or a plant entry makes a denominator zero)", where=Where(design.model.source))

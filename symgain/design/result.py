@@ -81,6 +81,7 @@ class Design:
     integral: GainDesign | None = None
     feedforward: GainDesign | None = None
     sampled: Any = None  # symgain.design.discretize.SampledPlant of a sampled-data design
+    warnings: tuple[str, ...] = ()  # one line each, for stderr and the JSON result
 
     def parts(self) -> list[GainDesign]:
         """The designed parts, in pipeline order."""

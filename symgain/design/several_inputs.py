@@ -34,6 +34,7 @@ from dataclasses import dataclass
 import sympy as sp
 
 from ..errors import ClosedFormLimitation, DesignError, ModelError, Where
+from ..model.definition import _shown
 from ..model.expressions import parse_expression
 from ..model import S, TargetSpec
 from .placement import gain_symbols
@@ -60,12 +61,14 @@ def parse_pattern(raw, shape: tuple[int, int], symbols: dict, where: Where,
     """
     rows, cols = shape
     if not isinstance(raw, (list, tuple)) or not all(isinstance(r, (list, tuple)) for r in raw):
-        raise ModelError(f"pattern must be a list of rows, found {str(raw)[:60]!r}", where=where)
+        raise ModelError(f"pattern must be a list of rows, found {_shown(raw)}", where=where)
     if len(raw) != rows:
         raise ModelError(f"pattern has {len(raw)} rows, expected {rows} (one per {row_label[:-1]})",
                          where=where)
     out = []
     for i, row in enumerate(raw):
+        if not isinstance(row, (list, tuple)):
+            raise ModelError(f"row {i} of the pattern must be a list, found {type(row).__name__}", where=where.at(i))
         if len(row) != cols:
             raise ModelError(f"row {i} has {len(row)} entries, expected {cols} (one per {col_label[:-1]})",
                              where=where.at(i))
@@ -84,7 +87,7 @@ def parse_direction(raw, size: int, symbols: dict, where: Where, label: str) -> 
     [-1]])
     """
     if not isinstance(raw, (list, tuple)) or len(raw) != size:
-        raise ModelError(f"must list {size} entries (one per {label[:-1]}), found {str(raw)[:60]!r}",
+        raise ModelError(f"must list {size} entries (one per {label[:-1]}), found {_shown(raw)}",
                          where=where)
     f = sp.Matrix([v if isinstance(v, sp.Basic) else parse_expression(v, symbols, where=where.at(i))
                    for i, v in enumerate(raw)])

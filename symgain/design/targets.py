@@ -17,10 +17,11 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from ..errors import ModelError
+from ..errors import ModelError, printable
 from ..model import S, TargetSpec
 
-__all__ = ["Target", "resolve_target", "poles_polynomial", "damping_from_overshoot"]
+__all__ = ["Target", "resolve_target", "poles_polynomial", "damping_from_overshoot", "exact",
+           "target_warnings"]
 
 EXTRA_POLE_FACTOR = 5  # rule of thumb: extra poles five times faster than the dominant pair
 
@@ -33,6 +34,32 @@ class Target:
     poles: tuple[sp.Expr, ...] | None
     description: str
     notes: tuple[str, ...] = ()
+
+
+def exact(value, where=None) -> sp.Expr:
+    """A target value as an exact sympy number or expression; text is refused, never evaluated.
+
+    Text goes through the safe reader when a model is built
+    (:meth:`symgain.model.TargetSpec.read_with`); here only sympy values and
+    plain numbers arrive.
+
+    >>> exact(0.25), exact(sp.Integer(3))
+    (1/4, 3)
+    >>> exact("__import__('os')")
+    Traceback (most recent call last):
+    ...
+    symgain.errors.ModelError: target value given as text "__import__('os')"; build the model (Model, model_from_matrices) so that it is read safely
+    """
+    if isinstance(value, sp.Basic) and not isinstance(value, sp.MatrixBase):
+        return value
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        from ..model.expressions import parse_expression
+
+        return parse_expression(value, {}, where=where)
+    if isinstance(value, str):
+        raise ModelError(f"target value given as text {printable(repr(value), 60)}; build the model "
+                         "(Model, model_from_matrices) so that it is read safely", where=where)
+    raise ModelError(f"target value must be an expression, found {type(value).__name__}", where=where)
 
 
 def _is_zero(expr: sp.Expr) -> bool:
@@ -50,7 +77,7 @@ def poles_polynomial(poles, where=None, s: sp.Symbol = S) -> sp.Expr:
     ...
     symgain.errors.ModelError: pole -1 + I has no complex-conjugate partner
     """
-    remaining = [sp.nsimplify(p) if isinstance(p, float) else sp.sympify(p) for p in poles]
+    remaining = [exact(p, where) for p in poles]
     factors = []
     while remaining:
         p = remaining.pop(0)
@@ -101,6 +128,66 @@ def _dominant_pair(zeta, wn, extra, order, where) -> tuple[sp.Expr, tuple, list[
     return poly, poles, notes
 
 
+def _sane(value, label: str, where, upper=None) -> sp.Expr:
+    """A target number that must be positive (and below *upper*): refused when it cannot be.
+
+    Numbers are tested exactly; a symbol is refused only when its declared
+    sign already rules it out (``w`` declared ``real`` may still be positive).
+    """
+    value = exact(value, where)
+    if value.is_number:
+        if value.is_real is False or value.is_extended_real is False:
+            raise ModelError(f"{label} must be a real number, found {value}", where=where)
+        number = float(value.evalf(30))
+        if not number > 0 or (upper is not None and not number < upper):
+            bounds = f"between 0 and {upper}" if upper is not None else "positive"
+            raise ModelError(f"{label} must be {bounds}, found {sp.sstr(value)}", where=where)
+    elif value.is_nonpositive:
+        raise ModelError(f"{label} must be positive, but its declared sign allows only values <= 0",
+                         where=where)
+    return value
+
+
+def target_warnings(design) -> list[str]:
+    """One line per target pole whose real part is not negative at the nominal values.
+
+    A pole at 0 can be meant (an integrator kept on purpose), so this is a
+    warning, not an error.
+
+    >>> from symgain.model import Model, Parameter
+    >>> from symgain.design import derive
+    >>> m = Parameter.declare("m", sign="positive", range=(1, 2))
+    >>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",),
+    ...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+    ...               feedback=TargetSpec("poles", {"poles": (0, -1)}))
+    >>> target_warnings(derive(model))
+    ['feedback: target pole 0 has a real part >= 0 (at nominal values): the closed loop is not asymptotically stable']
+    """
+    import numpy as np
+
+    nominal = {p.symbol: p.nominal for p in design.model.parameters if p.nominal is not None}
+    out = []
+    for part in design.parts():
+        target = part.target
+        if target is None:
+            continue
+        try:
+            if target.poles is not None:
+                found = [(p, complex(sp.N(exact(p).xreplace(nominal)))) for p in target.poles]
+            else:
+                coeffs = sp.Poly(target.polynomial, S).all_coeffs()
+                numbers = [complex(sp.N(c.xreplace(nominal))) for c in coeffs]
+                found = [(None, r) for r in np.roots(numbers)]
+        except (TypeError, ValueError, sp.PolynomialError):
+            continue  # symbols without nominal values: nothing to say
+        for pole, value in found:
+            if np.isfinite(value) and value.real >= -1e-12 * max(1.0, abs(value)):
+                shown = sp.sstr(pole) if pole is not None else f"{value.real:.4g}{value.imag:+.4g}j"
+                out.append(f"{part.part}: target pole {shown} has a real part >= 0 (at nominal values): "
+                           "the closed loop is not asymptotically stable")
+    return list(dict.fromkeys(out))
+
+
 def resolve_target(spec: TargetSpec, order: int) -> Target:
     """The monic target polynomial of the given order for one target specification."""
     v, where = spec.values, spec.where
@@ -111,7 +198,7 @@ def resolve_target(spec: TargetSpec, order: int) -> Target:
                              where=where.child("poles") if where and where.key else where)
         return Target(poles_polynomial(poles, where), poles, "explicit poles")
     if spec.kind == "polynomial":
-        expr = sp.expand(v["polynomial"])
+        expr = sp.expand(exact(v["polynomial"], where))
         if S not in expr.free_symbols:
             raise ModelError(f"polynomial {expr} does not contain s", where=where)
         try:
@@ -129,15 +216,18 @@ def resolve_target(spec: TargetSpec, order: int) -> Target:
         from .prototypes import prototype_polynomial, prototype_source
 
         name = v["prototype"]
-        poly = prototype_polynomial(name, order, v["bandwidth"], S, where=where)
+        bandwidth = _sane(v["bandwidth"], "bandwidth", where)
+        poly = prototype_polynomial(name, order, bandwidth, S, where=where)
         return Target(sp.expand(poly), None, f"{name} prototype, bandwidth {v['bandwidth']}",
                       (f"{name} coefficients: {prototype_source(name)}",))
     if spec.kind == "damping":
-        zeta, wn = v["damping"], v["natural_frequency"]
+        zeta = _sane(v["damping"], "damping", where)
+        wn = _sane(v["natural_frequency"], "natural_frequency", where)
         poly, poles, notes = _dominant_pair(zeta, wn, v.get("extra_poles"), order, where)
         return Target(poly, poles, f"dominant pair damping {zeta}, natural frequency {wn}", tuple(notes))
     if spec.kind == "settling":
-        ts, mp = v["settling_time"], v["overshoot"]
+        ts = _sane(v["settling_time"], "settling_time", where)
+        mp = _sane(v["overshoot"], "overshoot", where, upper=1)
         zeta = damping_from_overshoot(mp)
         wn = 4 / (zeta * ts)
         poly, poles, notes = _dominant_pair(zeta, wn, v.get("extra_poles"), order, where)

@@ -16,11 +16,10 @@ output at all.
 """
 from __future__ import annotations
 
-import re
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from ..errors import OutputError
+from ..errors import OutputError, printable
 
 if TYPE_CHECKING:  # the design stage (sympy) loads only when something is rendered
     from ..design import Design
@@ -28,15 +27,28 @@ if TYPE_CHECKING:  # the design stage (sympy) loads only when something is rende
 __all__ = ["emit", "render", "TARGETS"]
 
 TARGETS = ("python", "c", "latex", "json")
-_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
 def render(design: Design, targets, name: str | None = None, precision: str = "double",
            latex_sections=None) -> dict[str, str]:
     """File name -> text for each target (nothing is written); ``latex_sections``: extra report sections."""
-    name = name or design.model.name
-    if not _IDENTIFIER.match(name):
-        raise OutputError(f"name {name!r} must be an identifier (it names files, module and C functions)")
+    from ..design import Design
+    from ..model.identifiers import C_KEYWORDS, PYTHON_KEYWORDS, describe_name, is_identifier
+
+    if not isinstance(design, Design):
+        raise OutputError(f"emit needs a Design (from derive), found {type(design).__name__}")
+    name = design.model.name if name is None else name
+    if not is_identifier(name):
+        raise OutputError(f"name {printable(repr(name), 60)} is not a name: {describe_name(name)} "
+                          "(it names files, the Python module and C functions)")
+    if name in PYTHON_KEYWORDS or name in C_KEYWORDS:
+        raise OutputError(f"name {name!r} is a Python or C keyword; choose another with --name")
+    if not isinstance(precision, str) or precision not in ("double", "single"):
+        raise OutputError(f"precision must be 'double' or 'single', found {printable(repr(precision), 40)}")
+    if isinstance(targets, str):
+        targets = [targets]
+    if not isinstance(targets, (list, tuple, set, frozenset)) or not targets:
+        raise OutputError(f"targets must be a list such as ['python', 'c'], found {type(targets).__name__}")
     texts: dict[str, str] = {}
     for target in dict.fromkeys(targets):
         if target == "python":
@@ -52,7 +64,7 @@ def render(design: Design, targets, name: str | None = None, precision: str = "d
             from .json import design_to_json
             texts[f"{name}.json"] = design_to_json(design) + "\n"
         else:
-            raise OutputError(f"unknown target {target!r}; choose from {', '.join(TARGETS)}")
+            raise OutputError(f"unknown target {printable(repr(target), 40)}; choose from {', '.join(TARGETS)}")
     return texts
 
 

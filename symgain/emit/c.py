@@ -2,12 +2,16 @@
 
 For each designed matrix ``int PREFIX_<function>(double p1, ..., double G[ROWS][COLS])``:
 parameters in declaration order, the matrix last (row-major). It returns 0
-on success and ``k`` when the k-th validity condition fails (rule in
-:mod:`symgain.emit.common`); the matrix is then left untouched. Shared
+on success, ``-k`` when the k-th argument is not finite or breaks the
+declared sign of its parameter, ``k`` when the k-th validity condition fails
+(rule in :mod:`symgain.emit.common`) and ``n + 1`` (n conditions) when an
+entry comes out not finite; on any failure the matrix is left untouched. Shared
 subexpressions become ``const double`` locals; no dynamic memory. With
 ``precision="single"`` everything is ``float`` with ``f``-suffixed literals
 and functions. Names that are C keywords, <math.h> names, the matrix
 argument or a local name get ``_p`` appended (documented in the header).
+User text (title, meanings, units) is escaped for comments
+(:func:`symgain.emit.escape.c_comment`).
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -19,7 +23,7 @@ argument or a local name get ``_p`` appended (documented in the header).
 >>> header, source = c_files(derive(model), "cart")
 >>> [line for line in header.splitlines() if line.startswith("int ")][0]
 'int cart_feedback_gain(double m, double K[1][2]);'
->>> "K[0][1] = 2*m;" in source
+>>> "value_[0][1] = 2*m;" in source
 True
 """
 from __future__ import annotations
@@ -30,18 +34,14 @@ from sympy.printing.c import C99CodePrinter
 from sympy.printing.precedence import PRECEDENCE
 
 from ..design import Design
+from ..errors import OutputError, printable
+from ..model.identifiers import C_RESERVED
 from .common import TOLERANCE, Function, design_functions, failure_rule, mangle, shared_subexpressions
+from .escape import c_comment
 
 __all__ = ["c_files", "CPrinter", "C_RESERVED", "c_operation_counts"]
 
-C_KEYWORDS = set("""auto break case char const continue default do double else enum extern float for goto if
-inline int long register restrict return short signed sizeof static struct switch typedef union unsigned
-void volatile while _Bool _Complex _Imaginary""".split())
-MATH_NAMES = set("""acos asin atan atan2 cos sin tan acosh asinh atanh cosh sinh tanh exp exp2 expm1 frexp
-ldexp log log10 log1p log2 logb modf scalbn cbrt fabs hypot pow sqrt erf erfc lgamma tgamma ceil floor
-nearbyint rint round trunc fmod remainder copysign nan nextafter fdim fmax fmin fma isnan isinf isfinite
-signbit j0 j1 jn y0 y1 yn gamma main errno""".split())
-C_RESERVED = C_KEYWORDS | MATH_NAMES
+
 
 
 class CPrinter(C99CodePrinter):
@@ -74,8 +74,11 @@ def _printer(precision: str) -> CPrinter:
                      "math_macros": {}})
 
 
+_LOCAL = "value_"  # the local matrix that holds the entries until all are known to be finite
+
+
 def _names(fn: Function, avoid: set[str]) -> dict[str, str]:
-    reserved = set(C_RESERVED) | {fn.label} | avoid
+    reserved = set(C_RESERVED) | {fn.label, _LOCAL} | avoid
     return {a: mangle(a, reserved) for a in fn.arguments}
 
 
@@ -89,13 +92,19 @@ def _signature(fn: Function, prefix: str, names: dict[str, str], ctype: str) -> 
     return f"int {prefix}_{fn.name}({', '.join(args)})"
 
 
-def _comment(fn: Function, names: dict[str, str]) -> list[str]:
+_SIGN_TEST = {"positive": ">", "nonnegative": ">=", "nonzero": "!="}
+
+
+def _comment(fn: Function, names: dict[str, str], signs: dict[str, str]) -> list[str]:
     rows, cols = fn.shape
-    lines = [f"/* {fn.part} {fn.key.replace('_', ' ')} {fn.label}: {rows} x {cols}, row-major.", " *"]
+    lines = [f"/* {fn.part} {c_comment(fn.key.replace('_', ' '))} {fn.label}: {rows} x {cols}, row-major.",
+             " *"]
     for name, meaning, unit, rng in fn.meanings:
         shown = names[name] + (f" (model name {name}, mangled)" if names[name] != name else "")
-        lines.append(f" * {shown}: {meaning or 'no meaning given'}"
-                     + (f" [{unit}]" if unit else "") + f", range {_range(rng)}")
+        sign = signs.get(name, "real")
+        lines.append(f" * {shown}: {c_comment(meaning) or 'no meaning given'}"
+                     + (f" [{c_comment(unit)}]" if unit else "")
+                     + (f", {_SIGN_TEST[sign]} 0" if sign in _SIGN_TEST else "") + f", range {_range(rng)}")
     if fn.definitions:
         lines.append(" *")
         lines.append(f" * compact form: {len(fn.definitions)} named intermediate quantities (controllability")
@@ -103,16 +112,22 @@ def _comment(fn: Function, names: dict[str, str]) -> list[str]:
         lines.append(" * in order; each pivot is tested before it divides anything.")
     lines.append(" *")
     lines.append(" * returns 0 on success;")
+    for k, a in enumerate(fn.arguments, start=1):
+        sign = signs.get(a, "real")
+        need = f"finite and {_SIGN_TEST[sign]} 0" if sign in _SIGN_TEST else "finite"
+        lines.append(f" * returns -{k} when {names[a]} is not {need};")
     for k, cond in enumerate(fn.conditions, start=1):
-        lines.append(f" * returns {k} when {sp.sstr(cond)} == 0 ({fn.label} is then left untouched);")
+        lines.append(f" * returns {k} when {c_comment(sp.sstr(cond))} == 0;")
     for k, cond in enumerate(fn.nonnegative, start=len(fn.conditions) + 1):
-        lines.append(f" * returns {k} when {sp.sstr(cond)} < 0 (this branch is not real there);")
+        lines.append(f" * returns {k} when {c_comment(sp.sstr(cond))} < 0 (this branch is not real there);")
     if fn.branch is not None:
         lines.append(f" * solution branch {fn.branch} of the design (several branches reach the target).")
     if not fn.conditions and not fn.nonnegative:
-        lines.append(" * valid for every parameter value allowed by the declared signs.")
+        lines.append(" * valid for every parameter value allowed by the declared signs;")
+    lines.append(f" * returns {len(fn.conditions) + len(fn.nonnegative) + 1} when an entry comes out not finite;")
+    lines.append(f" * on any failure {fn.label} is left untouched.")
     lines.append(" */")
-    return [line.replace("*/", "* /") if i < len(lines) - 1 else line for i, line in enumerate(lines)]
+    return lines
 
 
 def _renamed(fn: Function, names):
@@ -123,18 +138,21 @@ def _renamed(fn: Function, names):
             [(sym, e.xreplace(rename)) for sym, e in fn.definitions], [c.xreplace(rename) for c in fn.nonnegative])
 
 
-def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: bool = True) -> list[str]:
+def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: bool = True,
+          signs: dict | None = None) -> list[str]:
     entries, conditions, definitions, nonnegative = _renamed(fn, names)
-    avoid = set(names.values()) | {fn.label} | {str(sym) for sym, _ in definitions}
+    avoid = set(names.values()) | {fn.label, _LOCAL} | {str(sym) for sym, _ in definitions}
     lines = []
-    used = {str(s) for e in [*entries, *conditions, *nonnegative, *(d for _, d in definitions)]
-            for s in e.free_symbols}
-    for a in fn.arguments:
-        if names[a] not in used:
-            lines.append(f"    (void){names[a]};  /* not needed by these formulas */")
     fabs = "fabsf" if ctype == "float" else "fabs"
     one = "1.0f" if ctype == "float" else "1.0"
+    zero = "0.0f" if ctype == "float" else "0.0"
     lit = f"{tol!r}f" if ctype == "float" else repr(tol)
+    for k, a in enumerate(fn.arguments, start=1):  # every argument is tested, so every one is used
+        sign = (signs or {}).get(a, "real")
+        check = f"!isfinite({names[a]})"
+        if sign in _SIGN_TEST:
+            check += f" || !({names[a]} {_SIGN_TEST[sign]} {zero})"
+        lines += [f"    if ({check}) {{", f"        return -{k};", "    }"]
     checks = fn.checked_after()
 
     def test(indexes):
@@ -166,9 +184,15 @@ def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: b
     for sym, expr in replacements:
         lines.append(f"    const {ctype} {sym} = {printer.doprint(expr)};")
     rows, cols = fn.shape
-    for k, expr in enumerate(reduced):
-        i, j = divmod(k, cols)
-        lines.append(f"    {fn.label}[{i}][{j}] = {printer.doprint(expr)};")
+    lines.append(f"    {ctype} {_LOCAL}[{rows}][{cols}];")
+    cells = [divmod(k, cols) for k in range(rows * cols)]
+    for (i, j), expr in zip(cells, reduced):
+        lines.append(f"    {_LOCAL}[{i}][{j}] = {printer.doprint(expr)};")
+    for i, j in cells:
+        bad = f"isnan({_LOCAL}[{i}][{j}])" if fn.infinite_ok else f"!isfinite({_LOCAL}[{i}][{j}])"
+        lines.append(f"    if ({bad}) return {len(conditions) + len(nonnegative) + 1};")
+    for i, j in cells:
+        lines.append(f"    {fn.label}[{i}][{j}] = {_LOCAL}[{i}][{j}];")
     lines.append("    return 0;")
     return lines
 
@@ -194,14 +218,15 @@ def c_operation_counts(design: Design) -> dict[str, tuple[int, int]]:
 def c_files(design: Design, prefix: str | None = None, precision: str = "double",
             cse: bool = True) -> tuple[str, str]:
     """``(header, source)`` texts for the design; ``prefix`` defaults to the model name."""
-    if precision not in TOLERANCE:
-        raise ValueError(f"precision must be 'double' or 'single', found {precision!r}")
+    if not isinstance(precision, str) or precision not in TOLERANCE:
+        raise OutputError(f"precision must be 'double' or 'single', found {printable(repr(precision), 40)}")
     model = design.model
     prefix = prefix or model.name
     ctype = "float" if precision == "single" else "double"
     printer = _printer(precision)
     guard = f"{prefix.upper()}_H"
-    intro = [f"/* {prefix}: closed-form gains of {model.name}" + (f" ({model.title})" if model.title else ""),
+    intro = [f"/* {prefix}: closed-form gains of {model.name}"
+             + (f" ({c_comment(model.title)})" if model.title else ""),
              f" * Generated by symgain; C99, {ctype} precision, needs only <math.h>, no dynamic memory.",
              " * Validity test: condition f != 0 fails where |f| <= "
              f"{TOLERANCE[precision]:g} * (1 + sum of |terms of f|).",
@@ -220,14 +245,15 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
         intro += [f" * No controller functions: {blocker}. */"]
     header = intro + [f"#ifndef {guard}", f"#define {guard}", ""]
     source = intro + ["#include <math.h>", f'#include "{prefix}.h"', ""]
+    signs = {p.name: p.sign for p in model.parameters}
     for fn in functions:
         names = _names(fn, set())
         rows, cols = fn.shape
         macro = f"{prefix}_{fn.name}".upper()
         sig = _signature(fn, prefix, names, ctype)
-        header += _comment(fn, names)
+        header += _comment(fn, names, signs)
         header += [f"#define {macro}_ROWS {rows}", f"#define {macro}_COLS {cols}", sig + ";", ""]
-        source += [sig, "{"] + _body(fn, names, printer, ctype, TOLERANCE[precision], cse) + ["}", ""]
+        source += [sig, "{"] + _body(fn, names, printer, ctype, TOLERANCE[precision], cse, signs) + ["}", ""]
     if blocker is None:
         h, src = controller_c(design, prefix, ctype, C_RESERVED)
         header += h

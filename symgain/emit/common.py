@@ -26,12 +26,12 @@ where ``|f| <= tol * (1 + |t_1| + ... + |t_k|)`` with ``t_i`` the terms of
 """
 from __future__ import annotations
 
-import keyword
 from dataclasses import dataclass
 
 import sympy as sp
 
 from ..design import Design
+from ..model.identifiers import PYTHON_KEYWORDS
 
 __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
            "mangle", "TOLERANCE"]
@@ -56,6 +56,7 @@ class Function:
     definitions: tuple[tuple[sp.Symbol, sp.Expr], ...] = ()  # compact form: computed first, in order
     nonnegative: tuple[sp.Expr, ...] = ()  # f of each f >= 0 (a solution branch is real there)
     branch: int | None = None  # the solution branch this function holds (several-input designs)
+    infinite_ok: bool = False  # entries may be +-inf (absent input limits); NaN is still refused
 
     def checked_after(self) -> dict[int, list[int]]:
         """Definition index -> indexes of the conditions to test right after it (compact form).
@@ -173,5 +174,4 @@ def mangle(name: str, reserved: set[str]) -> str:
     return name
 
 
-PYTHON_RESERVED = (set(keyword.kwlist) | set(keyword.softkwlist)
-                   | {"numpy", "shape", "out", "_fails", "_bad", "_invalid_mask", "on_invalid"})
+PYTHON_RESERVED = set(PYTHON_KEYWORDS) | {"numpy", "shape", "out", "_fails", "_bad", "_invalid_mask", "on_invalid"}

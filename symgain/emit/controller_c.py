@@ -120,8 +120,8 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
              + ");")
     s += ["    if (rc != 0) {", "        return rc;", "    }", f"    {P}_controller_reset(ctl);", "    return 0;", "}", ""]
     s += [set_sig, "{"]
-    for label, r_, c_, _ in mats:
-        s.append(f"    {t} {label}[{r_}][{c_}];")
+    for label, r_, c_, _ in mats:  # zero-filled: a gain function that fails leaves its matrix untouched
+        s.append(f"    {t} {label}[{r_}][{c_}] = {{{{0}}}};")
     s.append("    int i, j;")
     if period_param is not None:
         s.append(f"    const {t} {names[period_param]} = ctl->T;")

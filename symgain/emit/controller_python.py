@@ -65,9 +65,9 @@ def controller_functions(design: Design) -> list[Function]:
     meanings = tuple((p.name, p.meaning, p.unit, p.range) for p in model.parameters)
     out = []
 
-    def add(name, part, label, matrix, conds=()):
+    def add(name, part, label, matrix, conds=(), infinite_ok=False):
         out.append(Function(name, part, "matrix", label, sp.ImmutableMatrix(matrix), params,
-                            _condition_exprs(conds), meanings))
+                            _condition_exprs(conds), meanings, infinite_ok=infinite_ok))
 
     if design.sampled is not None:
         add("plant_Phi", "sampled plant", "Phi", design.sampled.Phi, design.sampled.valid_when)
@@ -86,7 +86,7 @@ def controller_functions(design: Design) -> list[Function]:
         rows[0].append(-sp.oo if lo is None else lo)
         rows[1].append(sp.oo if hi is None else hi)
         rows[2].append(sp.oo if rate is None else rate)
-    add("input_limits", "actuator", "U", sp.Matrix(rows))
+    add("input_limits", "actuator", "U", sp.Matrix(rows), infinite_ok=True)  # no limit: +-inf
     aw = model.anti_windup or {}
     if design.integral is not None and aw.get("tracking_time") is not None:
         add("tracking_time", "anti-windup", "TT", sp.Matrix([[aw["tracking_time"]]]))

@@ -2,9 +2,12 @@
 
 Every file is first written to a temporary file in the same folder and then
 renamed over the target, so a reader never sees half a file and an existing
-file is only ever replaced by a complete one. :func:`write_files` renders
-nothing itself: callers build every text first, so a failure while
-rendering leaves no output at all.
+file is only ever replaced by a complete one. :func:`write_files` treats a
+set of files as one: every temporary file is written (and synced) first, and
+only then are they renamed into place; if any write or rename fails, the
+files already replaced get their old contents back and no new file of the
+set stays behind. It renders nothing itself: callers build every text first,
+so a failure while rendering leaves no output at all.
 
 >>> import tempfile, pathlib
 >>> folder = pathlib.Path(tempfile.mkdtemp())
@@ -20,10 +23,11 @@ symgain.errors.OutputError: cannot create output folder ...
 from __future__ import annotations
 
 import os
+import shutil
 import tempfile
 from pathlib import Path
 
-from ..errors import OutputError
+from ..errors import OutputError, printable
 
 __all__ = ["write_atomic", "write_files", "prepare_folder", "default_folder"]
 
@@ -34,17 +38,16 @@ def prepare_folder(folder) -> Path:
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise OutputError(f"cannot create output folder {str(folder)!r}: {exc.strerror or exc}") from None
+        raise OutputError(f"cannot create output folder {_shown(folder)}: {exc.strerror or exc}") from None
     if not folder.is_dir():
-        raise OutputError(f"output path {str(folder)!r} is not a folder")
+        raise OutputError(f"output path {_shown(folder)} is not a folder")
     if not os.access(folder, os.W_OK | os.X_OK):
-        raise OutputError(f"output folder {str(folder)!r} is not writable")
+        raise OutputError(f"output folder {_shown(folder)} is not writable")
     return folder
 
 
-def write_atomic(path, text: str | bytes) -> Path:
-    """Write text (or bytes) to ``path`` through a temporary file in the same folder and a rename."""
-    path = Path(path)
+def _temporary(path: Path, text: str | bytes) -> str:
+    """A complete, synced temporary copy of *text* beside *path*; its name."""
     fd = None
     tmp = None
     binary = isinstance(text, bytes)
@@ -58,22 +61,71 @@ def write_atomic(path, text: str | bytes) -> Path:
             handle.write(text)
             handle.flush()
             os.fsync(handle.fileno())
-        os.replace(tmp, path)
-        tmp = None
-    except OSError as exc:
-        raise OutputError(f"cannot write {str(path)!r}: {exc.strerror or exc}") from None
+        done, tmp = tmp, None
+        return done
+    except (OSError, UnicodeEncodeError) as exc:
+        raise OutputError(f"cannot write {_shown(path)}: {getattr(exc, 'strerror', None) or exc}") from None
     finally:
         if fd is not None:
             os.close(fd)
         if tmp is not None and os.path.exists(tmp):
             os.unlink(tmp)
-    return path
 
 
-def write_files(folder, texts: dict[str, str]) -> list[Path]:
-    """Write every ``name -> text`` into ``folder`` atomically; the paths in the given order."""
-    folder = prepare_folder(folder)
-    return [write_atomic(folder / name, text) for name, text in texts.items()]
+def _shown(path) -> str:
+    return printable(repr(str(path)), 120)
+
+
+def write_atomic(path, text: str | bytes) -> Path:
+    """Write text (or bytes) to ``path`` through a temporary file in the same folder and a rename."""
+    return write_files(Path(path).parent, {Path(path).name: text}, prepare=False)[0]
+
+
+def write_files(folder, texts: dict[str, str | bytes], prepare: bool = True) -> list[Path]:
+    """Write every ``name -> text`` into ``folder`` as one set (all or nothing); the paths in order."""
+    folder = prepare_folder(folder) if prepare else Path(folder)
+    targets = [folder / name for name in texts]
+    temporaries: list[str] = []
+    backups: list[tuple[Path, str | None]] = []  # (target, saved old file or None if it was new)
+    try:
+        for path, text in zip(targets, texts.values()):
+            temporaries.append(_temporary(path, text))
+        for path, tmp in zip(targets, temporaries):
+            saved = None
+            if os.path.isdir(path):
+                raise OutputError(f"{_shown(path)} is a folder; it cannot be replaced by a file")
+            if os.path.lexists(path):
+                saved = tempfile.mktemp(prefix=f".{path.name}.", suffix=".old", dir=folder)
+                try:
+                    os.link(path, saved)
+                except OSError:  # no hard links here: keep a copy instead
+                    shutil.copy2(path, saved)
+            try:
+                os.replace(tmp, path)
+            except OSError:
+                if saved is not None and os.path.exists(saved):
+                    os.unlink(saved)
+                raise
+            backups.append((path, saved))
+    except (OSError, OutputError) as exc:
+        for path, saved in reversed(backups):  # put the old set back
+            try:
+                if saved is not None:
+                    os.replace(saved, path)
+                else:
+                    os.unlink(path)
+            except OSError:
+                pass
+        for tmp in temporaries:
+            if os.path.exists(tmp):
+                os.unlink(tmp)
+        if isinstance(exc, OutputError):
+            raise
+        raise OutputError(f"cannot write {_shown(folder)}: {exc.strerror or exc}") from None
+    for _, saved in backups:
+        if saved is not None and os.path.exists(saved):
+            os.unlink(saved)
+    return targets
 
 
 def default_folder(model_name: str) -> Path:

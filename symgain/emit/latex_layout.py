@@ -164,14 +164,12 @@ def matrix_tex(mat) -> str | None:
     return r"\begin{bmatrix} " + r" \\ ".join(rows) + r" \end{bmatrix}"
 
 
-_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
-            "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
-
-
 def text(value) -> str:
-    r"""Plain text made safe for LaTeX.
+    r"""Plain text made safe for LaTeX (the rule of :func:`symgain.emit.escape.latex_text`).
 
     >>> text("N*s/m & 5% of m_c")
     'N*s/m \\& 5\\% of m\\_c'
     """
-    return "".join(_SPECIAL.get(ch, ch) for ch in str(value))
+    from .escape import latex_text
+
+    return latex_text(value)

@@ -24,6 +24,8 @@ from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.cm import ScalarMappable
 
+from .escape import plot_text
+
 __all__ = ["DPI", "new_figure", "png_bytes", "png_size", "schedule_figure", "pole_migration_figure",
            "step_figure", "schedule_figure_size"]
 
@@ -55,14 +57,18 @@ def png_size(data: bytes) -> tuple[int, int]:
 
 
 def _unit(model, name: str) -> str:
-    unit = model.parameter(name).unit
+    unit = plot_text(model.parameter(name).unit)
     return f"{name} [{unit}]" if unit else name
+
+
+def _title(model) -> str:
+    return plot_text(model.title or model.name)
 
 
 def _fixed_text(model, fixed: dict) -> str:
     parts = []
     for k, v in fixed.items():
-        unit = model.parameter(k).unit
+        unit = plot_text(model.parameter(k).unit)
         parts.append(f"{k} = {v:g}" + (f" {unit}" if unit else ""))
     return ", ".join(parts)
 
@@ -94,7 +100,7 @@ def schedule_figure(schedule) -> Figure:
         else:
             for n, j in enumerate(picks):
                 y = np.where(schedule.valid[:, j], schedule.gains[k][:, j], np.nan)
-                unit = model.parameter(second.name).unit
+                unit = plot_text(model.parameter(second.name).unit)
                 ax.plot(x, y, "o-", markersize=3, lw=1.4, color=cmap(n / max(1, len(picks) - 1)),
                         label=f"{second.name} = {second.values[j]:g}" + (f" {unit}" if unit else ""))
             bad = ~schedule.valid.all(axis=1)
@@ -107,7 +113,7 @@ def schedule_figure(schedule) -> Figure:
         if k == 0 and (len(axes) == 2 or bad.any()):
             ax.legend(loc="best", ncol=2 if len(axes) == 2 else 1)
     panels[-1].set_xlabel(_unit(model, axes[0].name))
-    title = f"{model.title or model.name}: gains against {axes[0].name}"
+    title = f"{_title(model)}: gains against {axes[0].name}"
     fixed = _fixed_text(model, schedule.fixed)
     fig.suptitle(title + (f"\nheld at nominal: {fixed}" if fixed else ""), fontsize=12)
     fig.tight_layout()
@@ -131,7 +137,7 @@ def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray) -> Fig
         ax.axvline(0.0, color="0.3", lw=1, ls="--")
         ax.axhline(0.0, color="0.7", lw=0.8)
         unstable = poles.real.max() >= 0
-        nominal, unit = model.parameter(name).nominal, model.parameter(name).unit
+        nominal, unit = model.parameter(name).nominal, plot_text(model.parameter(name).unit)
         ax.set_title(f"true {name} over its range, controller assumes {name} = {nominal:g}"
                      + (f" {unit}" if unit else "")
                      + ("\n(some true values give an unstable loop)" if unstable else ""), fontsize=11)
@@ -140,7 +146,7 @@ def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray) -> Fig
         ax.grid(True, alpha=0.3)
         ax.legend(loc="best")
         fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label=f"true {_unit(model, name)}")
-    fig.suptitle(f"{model.title or model.name}\nclosed-loop pole migration under mismatch", fontsize=12)
+    fig.suptitle(f"{_title(model)}\nclosed-loop pole migration under mismatch", fontsize=12)
     fig.tight_layout()
     return fig
 
@@ -162,7 +168,7 @@ def step_figure(model, runs, output_name: str, gains: str = "fixed") -> Figure:
             ax.plot(run.time, run.output, color="tab:blue" if run.stable else "tab:red", lw=1.0,
                     alpha=0.6, ls="-" if run.stable else ":", label=label)
         else:
-            label = run.label + ("" if run.stable else " (unstable)")
+            label = plot_text(run.label) + ("" if run.stable else " (unstable)")
             ax.plot(run.time, run.output, color=cmap(n % 10), lw=1.3, label=label,
                     ls="-" if run.stable else ":")
         if run.stable:
@@ -171,11 +177,11 @@ def step_figure(model, runs, output_name: str, gains: str = "fixed") -> Figure:
     ax.set_ylim(min(-0.05, -0.1 * top), top)
     ax.axhline(1.0, color="0.5", lw=0.8, ls="--")
     ax.set_xlabel("time [s]")
-    ax.set_ylabel(f"output {output_name} (unit step in the reference)")
+    ax.set_ylabel(f"output {plot_text(output_name)} (unit step in the reference)")
     ax.grid(True, alpha=0.3)
     ax.legend(loc="center left", bbox_to_anchor=(1.01, 0.5), fontsize=8, title="plant values")
     how = ("controller fixed at nominal values, plant at the corners of its ranges" if gains == "fixed"
            else "gains from the formulas at each corner")
-    ax.set_title(f"{model.title or model.name}: closed-loop step response\n{how}", fontsize=12)
+    ax.set_title(f"{_title(model)}: closed-loop step response\n{how}", fontsize=12)
     fig.tight_layout()
     return fig

@@ -9,7 +9,10 @@ it returns NaN gains at the failing points instead (schedules use this: the
 module is the one vectorized evaluator of the project, see
 :mod:`symgain.analysis.evaluate`). Shared subexpressions
 are computed once (``sympy.cse``). Names that are Python keywords get ``_p``
-appended.
+appended. Every argument must be a finite number with the declared sign of
+its parameter (``ValueError`` otherwise, naming the argument), and a result
+that is not finite raises ``ValueError`` instead of being returned. User
+text (title, meanings, units) is escaped (:mod:`symgain.emit.escape`).
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -33,6 +36,7 @@ from sympy.printing.numpy import NumPyPrinter
 from ..design import Design
 from .common import (PYTHON_RESERVED, TOLERANCE, Function, design_functions, failure_rule, mangle,
                      shared_subexpressions)
+from .escape import python_text
 
 __all__ = ["python_module", "PythonPrinter"]
 
@@ -53,30 +57,35 @@ def _range_text(rng) -> str:
     return f"[{rng[0]:g}, {rng[1]:g}]" if rng else "no declared range"
 
 
+_SIGN_WORDS = {"positive": "> 0", "nonnegative": ">= 0", "nonzero": "!= 0", "real": "any real"}
+
+
 def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]:
     model = design.model
+    signs = {p.name: p.sign for p in model.parameters}
     rows, cols = fn.shape
-    lines = [f'"""{fn.part.capitalize()} {fn.key.replace("_", " ")} {fn.label} of {model.name}: '
-             f"an array of shape (..., {rows}, {cols}).", ""]
+    lines = [f'"""{fn.part.capitalize()} {python_text(fn.key.replace("_", " "))} {fn.label} of '
+             f"{model.name}: an array of shape (..., {rows}, {cols}).", ""]
     if fn.definitions:
         lines.append(f"Definitions, computed in order ({len(fn.definitions)}; compact form):")
-        lines += [f"    {sp.sstr(sym)} = {sp.sstr(expr)}" for sym, expr in fn.definitions]
+        lines += [f"    {sp.sstr(sym)} = {python_text(sp.sstr(expr))}" for sym, expr in fn.definitions]
         lines.append("")
     lines.append("Formulas:")
     for i in range(rows):
         for j in range(cols):
-            lines.append(f"    {fn.label}[{i}, {j}] = {sp.sstr(fn.matrix[i, j])}")
+            lines.append(f"    {fn.label}[{i}, {j}] = {python_text(sp.sstr(fn.matrix[i, j]))}")
     lines += ["", "Parameters (keyword only; floats or numpy arrays, broadcast together):"]
     for name, meaning, unit, rng in fn.meanings:
         shown = names[name] + (f" (model name {name})" if names[name] != name else "")
-        unit_text = f" [{unit}]" if unit else ""
-        lines.append(f"    {shown}{unit_text}: {meaning or 'no meaning given'}; range {_range_text(rng)}")
+        unit_text = f" [{python_text(unit)}]" if unit else ""
+        lines.append(f"    {shown}{unit_text}: {python_text(meaning) or 'no meaning given'}; "
+                     f"{_SIGN_WORDS[signs.get(name, 'real')]}, range {_range_text(rng)}")
     if fn.branch is not None:
         lines += ["", f"Solution branch {fn.branch} of the design (several branches reach the target)."]
     lines += ["", "Valid when (otherwise ValueError):"]
     if fn.conditions or fn.nonnegative:
-        lines += [f"    {sp.sstr(c)} != 0" for c in fn.conditions]
-        lines += [f"    {sp.sstr(c)} >= 0  (the branch is real)" for c in fn.nonnegative]
+        lines += [f"    {python_text(sp.sstr(c))} != 0" for c in fn.conditions]
+        lines += [f"    {python_text(sp.sstr(c))} >= 0  (the branch is real)" for c in fn.nonnegative]
         lines.append(f"    (fails where |f| <= {TOLERANCE['double']:g} * (1 + sum of |terms of f|), "
                      "or f < -that for f >= 0)")
     else:
@@ -93,11 +102,15 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
     args = ", ".join(names[a] for a in fn.arguments)
     body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\"):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
+    signs = {p.name: p.sign for p in design.model.parameters}
     for a in fn.arguments:
-        body.append(f"    {names[a]} = numpy.asarray({names[a]}, dtype=numpy.float64)")
+        body.append(f"    {names[a]} = _argument({names[a]}, {names[a]!r}, {fn.name!r})")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
     avoid = set(names.values()) | {"shape", "out", "numpy", "_fails", "_bad", "on_invalid"}
     body.append("    _bad = _invalid_mask(on_invalid, shape)")
+    for a in fn.arguments:
+        body.append(f"    _bad = _sign({names[a]}, {names[a]!r}, {fn.name!r}, {signs.get(a, 'real')!r}, "
+                    "shape, _bad)")
     definitions = [(sym, expr.xreplace(rename)) for sym, expr in fn.definitions]
     checks = fn.checked_after()
 
@@ -143,13 +156,55 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         body.append(f"    {target} = {printer.doprint(expr)}")
         if index in done:
             body.append(f"    del {', '.join(sorted(done[index]))}")
-    body.append("    if _bad is not None:")
-    body.append("        out[_bad] = numpy.nan")
-    body.append("    return out")
+    body.append(f"    return _finite(out, {fn.name!r}, _bad" + (", infinite=True)" if fn.infinite_ok else ")"))
     return body
 
 
 _HELPER = '''
+_SIGNS = {"positive": (lambda v: v > 0, "positive"), "nonnegative": (lambda v: v >= 0, "nonnegative"),
+          "nonzero": (lambda v: v != 0, "nonzero"), "real": (lambda v: v == v, "real")}
+
+
+def _where(bad):
+    if bad.ndim == 0:
+        return "at these parameter values"
+    return f"at index {tuple(int(i) for i in numpy.argwhere(bad)[0])}"
+
+
+def _argument(value, name, function):
+    """The argument as a float array (text is refused, not converted)."""
+    if isinstance(value, (str, bytes)):
+        raise TypeError(f"{function}: {name} must be a number or an array of numbers, not text")
+    return numpy.asarray(value, dtype=numpy.float64)
+
+
+def _sign(value, name, function, sign, shape, mask):
+    """Raise ValueError where the argument is not finite or breaks its declared sign,
+    or, with a mask, add those points to it (their gains become NaN)."""
+    test, word = _SIGNS[sign]
+    with numpy.errstate(invalid="ignore"):
+        bad = numpy.broadcast_to(~(numpy.isfinite(value) & test(value)), shape)
+    if mask is not None:
+        return mask | bad
+    if bad.any():
+        raise ValueError(f"{function}: {name} must be a finite {word} number (declared sign), "
+                         f"fails {_where(bad)}")
+    return None
+
+
+def _finite(out, function, mask, infinite=False):
+    """The result: never inf or nan where it is returned as valid (ValueError instead,
+    or NaN at the masked points with on_invalid="nan"); ``infinite``: +-inf is a value (no limit)."""
+    ok = ~numpy.isnan(out) if infinite else numpy.isfinite(out)
+    if mask is not None:
+        out[mask | ~ok.all(axis=(-2, -1))] = numpy.nan
+        return out
+    bad = ~ok.all(axis=(-2, -1))
+    if bad.any():
+        raise ValueError(f"{function}: the gain is not finite {_where(bad)}")
+    return out
+
+
 def _invalid_mask(on_invalid, shape):
     """None to raise on a failed condition; a mask to collect failures ("nan")."""
     if on_invalid == "raise":
@@ -185,7 +240,8 @@ def python_module(design: Design) -> str:
     blocker = controller_blocker(design)
     if blocker is None:
         fns += controller_functions(design)
-    head = [f'"""Closed-form gains of {model.name}' + (f": {model.title}" if model.title else "") + ".",
+    head = [f'"""Closed-form gains of {model.name}' + (f": {python_text(model.title)}" if model.title else "")
+            + ".",
             "",
             "Generated by symgain from the model's symbolic design; needs numpy only.",
             "Functions: " + ", ".join(f.name for f in fns) + ".",

@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:  # scipy loads only for the commands that check
     from ..analysis.check import CheckReport
 from ..design import Design, GainDesign, gain_labels
+from ..errors import printable
 from ..model import S
 
 __all__ = ["format_design", "format_check", "format_polynomial"]
@@ -99,7 +100,7 @@ def _format_part(design: Design, part: GainDesign) -> list[str]:
 def format_design(design: Design) -> str:
     """The gains, targets and conditions, one formula per line."""
     model = design.model
-    head = f"{model.name}" + (f": {model.title}" if model.title else "")
+    head = f"{model.name}" + (f": {printable(model.title, 200)}" if model.title else "")
     lines = [head, f"states {', '.join(model.states)}; inputs {', '.join(model.inputs)}"
              + (f"; outputs {', '.join(model.outputs)}" if model.outputs else "")]
     lines.extend(f"plant: {note}" for note in model.notes)
@@ -136,7 +137,7 @@ def format_check(report: CheckReport, names: list[str]) -> str:
         lines.append("sampled_plant: relative difference of Phi, Gamma from scipy.signal.cont2discrete "
                      "(in the gain column); gains are compared on scipy's sampled plant, polynomials in z")
     lines.append("gain err: max |K - K_scipy| / max |K_scipy| (scipy.signal.place_poles; '-' where the"
-                 " poles repeat or the gain is not unique)")
+                 " poles repeat, the gain is not unique or the placement is too ill-conditioned to compare)")
     lines.append("closed-loop err: max difference of the characteristic-polynomial coefficients of the"
                  " numeric closed loop from the target's, with s scaled by the size of the target roots")
     return "\n".join(lines) + "\n"

@@ -30,7 +30,7 @@ from typing import Any, Iterable, Mapping
 import sympy as sp
 
 from ..errors import ModelError, Where
-from .definition import Model, Parameter, TargetSpec
+from .definition import Model, Parameter, TargetSpec, _shown
 from .toml_file import model_from_dict
 
 __all__ = ["model_from_matrices", "model_from_equations"]
@@ -46,7 +46,7 @@ def _text(value: Any, where: str) -> Any:
         return value
     if isinstance(value, sp.Basic):
         return sp.sstr(value).replace("Abs(", "abs(")
-    raise ModelError(f"expected an expression, found {type(value).__name__} {value!r}"[:120],
+    raise ModelError(f"expected an expression, found {type(value).__name__} {_shown(value)}",
                      where=Where(key=where))
 
 
@@ -65,7 +65,7 @@ def _target(value: Any, key: str) -> Any:
     if value is None or isinstance(value, TargetSpec):
         return value
     if not isinstance(value, Mapping):
-        raise ModelError(f"expected a table such as {{'poles': [...]}}, found {value!r}"[:120],
+        raise ModelError(f"expected a table such as {{'poles': [...]}}, found {_shown(value)}",
                          where=Where(key=key))
     table = {}
     for name, entry in value.items():
@@ -94,7 +94,7 @@ def _parameters(parameters: Any, found: Iterable[sp.Basic]) -> dict:
     table = {}
     for p in parameters:
         if not isinstance(p, Parameter):
-            raise ModelError(f"parameters must be Parameter objects or a dict, found {p!r}"[:120],
+            raise ModelError(f"parameters must be Parameter objects or a dict, found {_shown(p)}",
                              where=Where(key="parameters"))
         table[p.name] = {f: getattr(p, f) for f in _PARAMETER_FIELDS if getattr(p, f) not in (None, "")}
     return table
@@ -114,7 +114,22 @@ def _sympy_values(*values) -> list[sp.Basic]:
     return found
 
 
+def _names(value: Any, key: str) -> list[str] | None:
+    """A list of names; a bare string is refused (``states="pv"`` is not two states)."""
+    if value is None:
+        return None
+    if isinstance(value, (str, bytes)) or not isinstance(value, (list, tuple)):
+        raise ModelError(f"{key} must be a list of names, found {type(value).__name__} {_shown(value)}",
+                         where=Where(key=key))
+    return list(value)
+
+
 def _build(name, title, plant, parameters, targets, feedforward, source) -> Model:
+    if not isinstance(feedforward, bool):
+        raise ModelError(f"feedforward must be True or False, found {type(feedforward).__name__} "
+                         f"{_shown(feedforward)}", where=Where(key="feedforward"))
+    if not isinstance(title, str):
+        raise ModelError(f"title must be text, found {type(title).__name__}", where=Where(key="title"))
     data: dict[str, Any] = {"name": name, "plant": plant, "parameters": parameters}
     if title:
         data["title"] = title
@@ -153,6 +168,7 @@ def model_from_matrices(name: str, A, B, *, C=None, D=None, states=None, inputs=
     >>> model.states, model.A
     (('x1',), Matrix([[-R/L]]))
     """
+    states, inputs, outputs = _names(states, "states"), _names(inputs, "inputs"), _names(outputs, "outputs")
     values = _sympy_values(A, B, C, D, feedback, estimator, integral)
     plant: dict[str, Any] = {"A": _rows(A, "A"), "B": _rows(B, "B")}
     if C is not None:
@@ -213,6 +229,10 @@ def model_from_equations(name: str, equations: Mapping[str, Any], equilibrium: M
     [  0],
     [1/m]]))
     """
+    states, inputs, outputs = _names(states, "states"), _names(inputs, "inputs"), _names(outputs, "outputs")
+    for key, table in (("equations", equations), ("equilibrium", equilibrium)):
+        if not isinstance(table, Mapping):
+            raise ModelError(f"{key} must be a dict, found {type(table).__name__}", where=Where(key=key))
     eqs = {str(k): _text(v, "equations") for k, v in equations.items()}
     point = {str(k): _text(v, "equilibrium") for k, v in equilibrium.items()}
     states = list(states) if states is not None else list(eqs)

@@ -16,23 +16,76 @@ here: nothing downstream knows where a model came from.
 """
 from __future__ import annotations
 
-import re
+import math
+import numbers
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 import sympy as sp
 
-from ..errors import ModelError, Where
+from ..errors import ModelError, Where, printable
+from .identifiers import describe_name, is_identifier
 
 __all__ = ["Parameter", "TargetSpec", "Model", "SIGNS", "ROLES", "TARGET_KINDS"]
 
 SIGNS = ("positive", "nonnegative", "nonzero", "real")
 ROLES = ("plant", "design")
 TARGET_KINDS = ("poles", "polynomial", "prototype", "damping", "settling", "z_poles", "deadbeat")
-_IDENTIFIER = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
+#: target keys kept as given (read by the design stage), never read as expressions
+_RAW_TARGET_KEYS = ("pattern", "input_direction", "output_direction", "prototype", "branch", "method", "deadbeat",
+                    "target_split")
+MAX_TEXT = 2000  # characters of a title, meaning, unit or note
 
 S = sp.Symbol("s")  # the Laplace variable, shared by all modules
 Z = sp.Symbol("z")  # the shift variable of sampled-data designs
+MAX_DIMENSION = 100  # states, inputs or outputs of one model
+
+
+def _safe_matrix(value, symbols: Mapping[str, sp.Symbol], where: Where) -> sp.ImmutableMatrix:
+    """A matrix from sympy, or from rows whose text entries go through the safe reader.
+
+    Nothing is handed to ``sympy.sympify``: text is read by
+    :func:`symgain.expressions.parse_expression` (so ``"__import__('os')"`` is
+    refused, never run), numbers become exact, anything else is refused.
+
+    >>> _safe_matrix([["0", 1], [0.5, "-2"]], {}, Where(key="plant.A"))
+    Matrix([
+    [  0,  1],
+    [1/2, -2]])
+    """
+    from .expressions import parse_expression
+
+    if isinstance(value, sp.MatrixBase):
+        rows = value.tolist()
+    elif hasattr(value, "tolist") and not isinstance(value, (str, bytes)):  # numpy arrays
+        rows = value.tolist()
+    else:
+        rows = value
+    if not isinstance(rows, (list, tuple)) or not rows or not all(isinstance(r, (list, tuple)) for r in rows):
+        raise ModelError(f"must be a matrix (a list of rows), found {type(value).__name__} {_shown(value)}",
+                         where=where)
+    if len(rows) > MAX_DIMENSION or any(len(r) > MAX_DIMENSION for r in rows):
+        raise ModelError(f"matrices up to {MAX_DIMENSION} x {MAX_DIMENSION} are supported", where=where)
+    width = len(rows[0])
+    out = []
+    for i, row in enumerate(rows):
+        if len(row) != width or not width:
+            raise ModelError(f"row {i} has {len(row)} entries but row 0 has {width}", where=where.at(i))
+        entries = []
+        for j, entry in enumerate(row):
+            if isinstance(entry, sp.Basic) and not isinstance(entry, sp.MatrixBase):
+                if entry.has(sp.zoo, sp.nan, sp.oo, -sp.oo):
+                    raise ModelError("entry has no finite value", where=where.at(i, j))
+                entries.append(entry)
+            elif isinstance(entry, (str, int, float)) and not isinstance(entry, bool):
+                entries.append(parse_expression(entry, symbols, where=where.at(i, j)))
+            elif isinstance(entry, numbers.Real) and not isinstance(entry, bool):
+                entries.append(parse_expression(float(entry), symbols, where=where.at(i, j)))
+            else:
+                raise ModelError(f"entry must be an expression, found {type(entry).__name__} "
+                                 f"{_shown(entry)}", where=where.at(i, j))
+        out.append(entries)
+    return sp.ImmutableMatrix(out)
 
 
 def _assumptions(sign: str) -> dict[str, bool]:
@@ -46,6 +99,40 @@ def _assumptions(sign: str) -> dict[str, bool]:
 
 # The standard normalized pole patterns a target may name (tables in symgain.design.prototypes).
 PROTOTYPE_NAMES: tuple[str, ...] = ("binomial", "butterworth", "bessel", "itae")
+
+
+def _shown(value) -> str:
+    """A value as echoed in a message: its repr, one line, at most about 60 characters."""
+    import reprlib
+
+    short = reprlib.Repr()
+    short.maxstring, short.maxother, short.maxlist, short.maxlevel = 50, 50, 4, 2
+    return printable(short.repr(value), 70)
+
+
+def _real_number(label: str, value, where: Where) -> float:
+    """A finite real number given as a number (never text, a boolean or nan)."""
+    if isinstance(value, bool) or not isinstance(value, (numbers.Real, sp.Number)) \
+            or (isinstance(value, sp.Number) and not value.is_real):
+        raise ModelError(f"{label} must be a number, found {type(value).__name__} {_shown(value)}",
+                         where=where)
+    try:
+        number = float(value)
+    except (TypeError, ValueError, OverflowError):
+        raise ModelError(f"{label} must be a finite number, found {_shown(value)}", where=where) from None
+    if not math.isfinite(number) or abs(number) > 1e300:
+        raise ModelError(f"{label} must be a finite number, found {_shown(value)}", where=where)
+    return number
+
+
+def _text_field(label: str, value, where: Where) -> str:
+    if value is None:
+        return ""
+    if not isinstance(value, str):
+        raise ModelError(f"{label} must be text, found {type(value).__name__} {_shown(value)}", where=where)
+    if len(value) > MAX_TEXT:
+        raise ModelError(f"{label} is longer than {MAX_TEXT} characters", where=where)
+    return value
 
 
 @dataclass(frozen=True)
@@ -66,33 +153,37 @@ class Parameter:
                 role: str = "plant", unit: str = "", meaning: str = "",
                 where: Where | None = None) -> "Parameter":
         """Validate the fields and create the sympy symbol with its sign assumption."""
-        where = where or Where(key=f"parameters.{name}")
-        if not _IDENTIFIER.match(name):
-            raise ModelError(f"parameter name {name!r} is not an identifier", where=where)
-        if sign not in SIGNS:
-            raise ModelError(f"sign {sign!r} is not one of {', '.join(SIGNS)}", where=where)
-        if role not in ROLES:
-            raise ModelError(f"role {role!r} is not one of {', '.join(ROLES)}", where=where)
+        where = where or Where(key=f"parameters.{printable(name, 60)}")
+        from .expressions import RESERVED_NAMES
+
+        if not is_identifier(name):
+            raise ModelError(f"parameter name {_shown(name)} is not a name: {describe_name(name)}", where=where)
+        if name in RESERVED_NAMES:
+            raise ModelError(f"{name!r} is reserved and cannot be a parameter", where=where)
+        for label, value, choices in (("sign", sign, SIGNS), ("role", role, ROLES)):
+            if not isinstance(value, str) or value not in choices:
+                raise ModelError(f"{label} {_shown(value)} is not one of {', '.join(choices)}", where=where)
+        unit = _text_field("unit", unit, where)
+        meaning = _text_field("meaning", meaning, where)
         if range is not None:
-            try:
-                low, high = (float(v) for v in range)
-            except (TypeError, ValueError):
-                raise ModelError(f"range must be [low, high] numbers, found {range!r}", where=where) from None
+            if not isinstance(range, (list, tuple)) or len(range) != 2:
+                raise ModelError(f"range must be [low, high] numbers, found {_shown(range)}", where=where)
+            low, high = (_real_number("range", v, where) for v in range)
             if not low <= high:
-                raise ModelError(f"range [{low}, {high}] has low above high", where=where)
+                raise ModelError(f"range [{low:g}, {high:g}] has low above high", where=where)
             range = (low, high)
         if nominal is None and range is not None:
             nominal = (range[0] + range[1]) / 2
         if nominal is not None:
-            try:
-                nominal = float(nominal)
-            except (TypeError, ValueError):
-                raise ModelError(f"nominal must be a number, found {nominal!r}", where=where) from None
+            nominal = _real_number("nominal", nominal, where)
             if range is not None and not range[0] <= nominal <= range[1]:
-                raise ModelError(f"nominal {nominal} lies outside range {list(range)}", where=where)
+                raise ModelError(f"nominal {nominal:g} lies outside range [{range[0]:g}, {range[1]:g}]",
+                                 where=where)
         for value in ([nominal] if nominal is not None else []) + list(range or []):
             if sign == "positive" and value <= 0 or sign == "nonnegative" and value < 0:
-                raise ModelError(f"value {value} contradicts sign {sign!r}", where=where)
+                raise ModelError(f"value {value:g} contradicts sign {sign!r}", where=where)
+        if sign == "nonzero" and nominal == 0:
+            raise ModelError("nominal value 0 contradicts sign 'nonzero'", where=where)
         symbol = sp.Symbol(name, **_assumptions(sign))
         return cls(name, symbol, sign, range, nominal, role, unit, meaning)
 
@@ -112,8 +203,52 @@ class TargetSpec:
     where: Where = field(default_factory=Where)
 
     def __post_init__(self):
-        if self.kind not in TARGET_KINDS:
-            raise ModelError(f"unknown target kind {self.kind!r}", where=self.where)
+        if not isinstance(self.where, Where):
+            object.__setattr__(self, "where", Where())
+        if not isinstance(self.kind, str) or self.kind not in TARGET_KINDS:
+            raise ModelError(f"unknown target kind {_shown(self.kind)}; choose one of "
+                             f"{', '.join(TARGET_KINDS)}", where=self.where)
+        if not isinstance(self.values, Mapping):
+            raise ModelError(f"target values must be a dict, found {type(self.values).__name__}",
+                             where=self.where)
+        for key, value in self.values.items():
+            if key in _RAW_TARGET_KEYS:
+                continue
+            if key in ("poles", "extra_poles", "z_poles") and not isinstance(value, (list, tuple)):
+                raise ModelError(f"{key} must be a list, found {type(value).__name__} {_shown(value)}",
+                                 where=self.where)
+            for item in (value if isinstance(value, (list, tuple)) else [value]):
+                if isinstance(item, bool) or not isinstance(item, (str, int, float, sp.Basic)) \
+                        or isinstance(item, sp.MatrixBase):
+                    raise ModelError(f"target value {key} must be an expression, found "
+                                     f"{type(item).__name__} {_shown(item)}", where=self.where)
+
+    def read_with(self, symbols: Mapping[str, sp.Symbol]) -> "TargetSpec":
+        """The same target with every text value read by the safe expression reader.
+
+        >>> w = sp.Symbol("w", positive=True)
+        >>> TargetSpec("poles", {"poles": ["-w", -2]}).read_with({"w": w}).values["poles"]
+        (-w, -2)
+        """
+        from .expressions import parse_expression
+
+        def read(key, item, index=None):
+            where = self.where.child(key) if self.where.key else Where(self.where.file, key)
+            where = where.at(index) if index is not None else where
+            if isinstance(item, sp.Basic):
+                return item
+            extra = {"s": S} if key == "polynomial" else None
+            return parse_expression(item, symbols, where=where, extra=extra)
+
+        values: dict[str, Any] = {}
+        for key, value in self.values.items():
+            if key in _RAW_TARGET_KEYS:
+                values[key] = value
+            elif isinstance(value, (list, tuple)):
+                values[key] = tuple(read(key, item, i) for i, item in enumerate(value))
+            else:
+                values[key] = read(key, value)
+        return TargetSpec(self.kind, values, self.where)
 
 
 @dataclass(frozen=True)
@@ -143,13 +278,13 @@ class Model:
     anti_windup: Mapping[str, Any] | None = None  # {"method": ..., "tracking_time": ...}
 
     def __post_init__(self):
-        where = Where(self.source, "plant")
-        A = sp.ImmutableMatrix(self.A)
-        B = sp.ImmutableMatrix(self.B)
+        where = Where(self.source if isinstance(self.source, str) else None, "plant")
+        self._check_fields()
+        symbols = {p.name: p.symbol for p in self.parameters}
+        A = _safe_matrix(self.A, symbols, where.child("A"))
+        B = _safe_matrix(self.B, symbols, where.child("B"))
         object.__setattr__(self, "A", A)
         object.__setattr__(self, "B", B)
-        if not _IDENTIFIER.match(self.name or ""):
-            raise ModelError(f"name {self.name!r} must be an identifier", where=Where(self.source, "name"))
         if A.rows != A.cols:
             raise ModelError(f"A must be square, found {A.rows}x{A.cols}", where=where.child("A"))
         if A.rows != len(self.states):
@@ -162,7 +297,7 @@ class Model:
             raise ModelError(f"B has {B.cols} columns but {len(self.inputs)} inputs are named",
                              where=where.child("B"))
         if self.C is not None:
-            C = sp.ImmutableMatrix(self.C)
+            C = _safe_matrix(self.C, symbols, where.child("C"))
             object.__setattr__(self, "C", C)
             if C.cols != A.rows:
                 raise ModelError(f"C must have {A.rows} columns, found {C.cols}", where=where.child("C"))
@@ -170,12 +305,20 @@ class Model:
                 raise ModelError(f"C has {C.rows} rows but {len(self.outputs)} outputs are named",
                                  where=where.child("C"))
         if self.D is not None:
-            object.__setattr__(self, "D", sp.ImmutableMatrix(self.D))
+            object.__setattr__(self, "D", _safe_matrix(self.D, symbols, where.child("D")))
+        for part in ("feedback", "estimator", "integral"):
+            spec = getattr(self, part)
+            if spec is not None:
+                if not isinstance(spec, TargetSpec):
+                    raise ModelError(f"{part} must be a TargetSpec, found {type(spec).__name__}",
+                                     where=Where(where.file, part))
+                object.__setattr__(self, part, spec.read_with(symbols))
         names = [p.name for p in self.parameters]
         for label, group in (("state", self.states), ("input", self.inputs), ("output", self.outputs)):
             for n in group:
-                if not _IDENTIFIER.match(n):
-                    raise ModelError(f"{label} name {n!r} is not an identifier", where=where)
+                if not is_identifier(n):
+                    raise ModelError(f"{label} name {_shown(n)} is not a name: {describe_name(n)}",
+                                     where=where)
                 if n in names:
                     raise ModelError(f"{label} name {n!r} clashes with a parameter", where=where)
         declared = {p.symbol for p in self.parameters}
@@ -185,6 +328,40 @@ class Model:
             stray = mat.free_symbols - declared
             if stray:
                 raise ModelError(f"undeclared symbol {sorted(map(str, stray))[0]!r}", where=where.child(key))
+
+    def _check_fields(self) -> None:
+        """Types of the plain fields: refused, never coerced (a string is not a list of names)."""
+        top = Where(self.source if isinstance(self.source, str) else None)
+        if not is_identifier(self.name):
+            raise ModelError(f"name {_shown(self.name)} is not a name: {describe_name(self.name)}",
+                             where=top.child("name"))
+        for label in ("states", "inputs", "outputs"):
+            group = getattr(self, label)
+            if isinstance(group, (str, bytes)) or not isinstance(group, (list, tuple)):
+                raise ModelError(f"{label} must be a list of names, found {type(group).__name__} "
+                                 f"{_shown(group)}", where=top.child(label))
+            if len(group) > MAX_DIMENSION:
+                raise ModelError(f"{len(group)} {label}; at most {MAX_DIMENSION} are supported",
+                                 where=top.child(label))
+            if len(set(map(str, group))) != len(group):
+                raise ModelError(f"names repeat in {label}", where=top.child(label))
+            object.__setattr__(self, label, tuple(group))
+        params = self.parameters
+        if isinstance(params, (list, tuple)) and all(isinstance(p, Parameter) for p in params):
+            object.__setattr__(self, "parameters", tuple(params))
+        else:
+            raise ModelError("parameters must be a list of Parameter objects", where=top.child("parameters"))
+        if len({p.name for p in params}) != len(params):
+            raise ModelError("parameter names repeat", where=top.child("parameters"))
+        if not isinstance(self.feedforward, bool):
+            raise ModelError(f"feedforward must be True or False, found {type(self.feedforward).__name__} "
+                             f"{_shown(self.feedforward)}", where=top.child("feedforward"))
+        object.__setattr__(self, "title", _text_field("title", self.title, top.child("title")))
+        notes = self.notes
+        if isinstance(notes, str) or not isinstance(notes, (list, tuple)) \
+                or not all(isinstance(n, str) for n in notes):
+            raise ModelError("notes must be a list of texts", where=top.child("notes"))
+        object.__setattr__(self, "notes", tuple(notes))
 
     # -- convenient views -------------------------------------------------
     @property

@@ -42,6 +42,7 @@ __all__ = [
     "MAX_EXPONENT",
     "MAX_LITERAL_DIGITS",
     "MAX_NUMBER_BITS",
+    "MAX_NUMBER_DIGITS",
 ]
 
 #: Functions that may be called in an expression, by the name written in text.
@@ -69,7 +70,11 @@ MAX_TEXT_LENGTH = 10_000  # characters
 MAX_DEPTH = 100  # nested constructs (a long flat sum or product counts as one level)
 MAX_EXPONENT = 1000  # largest constant exponent, in magnitude
 MAX_LITERAL_DIGITS = 400  # longest single number literal
-MAX_NUMBER_BITS = 33_220  # rough ceiling on any number built: about 10 000 digits
+#: Rough ceiling on any number built, in decimal digits: below Python's default limit on
+#: converting integers to text (4300 digits, ``sys.get_int_max_str_digits``), so that
+#: every number the reader accepts can also be printed.
+MAX_NUMBER_DIGITS = 4000
+MAX_NUMBER_BITS = math.ceil(MAX_NUMBER_DIGITS * math.log2(10))
 
 _LITERAL_BITS = math.ceil(MAX_LITERAL_DIGITS * math.log2(10))
 _UNDEFINED = (sympy.zoo, sympy.nan, sympy.oo, -sympy.oo)
@@ -151,6 +156,10 @@ def _read_text(text: str, names: dict[str, sympy.Basic], where: Where | None) ->
             f"in {_quote(shown)}", where=where)
     if "#" in shown:
         raise ExpressionError(f"refused comment sign '#' in {_quote(shown)}", where=where)
+    for position, ch in enumerate(shown):  # Python would fold lookalike letters (NFKC) into ASCII names
+        if ord(ch) > 127:
+            raise ExpressionError(f"non-ASCII character U+{ord(ch):04X} at character {position + 1} of "
+                                  f"{_quote(shown)}; names and operators are plain ASCII", where=where)
     # One line for the parser; '^' is power, not Python's exclusive or.
     source = "".join(" " if ch in "\n\r\t\f\v" else ch for ch in shown).replace("^", "**")
     try:
@@ -213,8 +222,10 @@ class _Reader:
         if builder is None:
             self.refuse(node)
         value, bits = builder(node, depth)
+        if isinstance(node, ast.BinOp) and _constant_zero(value):
+            value = sympy.Integer(0)  # a zero in disguise, such as sin(1)^2 + cos(1)^2 - 1
         if bits > MAX_NUMBER_BITS:
-            self.fail("numbers would grow beyond about 10000 digits")
+            self.fail(f"numbers would grow beyond about {MAX_NUMBER_DIGITS} digits")
         if value.has(*_UNDEFINED):
             self.fail(f"{self.segment(node)} has no finite value")
         return value, bits
@@ -330,12 +341,12 @@ class _Reader:
             if inverse and kinds[0] is ast.Add:
                 value = -value
             elif inverse:
-                if value == 0:
+                if value == 0 or _constant_zero(value) or _expands_to_zero(value):
                     self.fail(f"division by zero at {self.segment(operand)}")
                 value = sympy.Pow(value, -1)
             terms.append(value)
         if total > MAX_NUMBER_BITS:
-            self.fail("numbers would grow beyond about 10000 digits")
+            self.fail(f"numbers would grow beyond about {MAX_NUMBER_DIGITS} digits")
         return (sympy.Add(*terms) if kinds[0] is ast.Add else sympy.Mul(*terms)), total
 
     def _power(self, node: ast.BinOp, depth: int):
@@ -345,12 +356,36 @@ class _Reader:
         if exponent.is_Rational:
             if abs(exponent) > MAX_EXPONENT:
                 self.fail(f"exponent {exponent} is too large (limit {MAX_EXPONENT})")
-            if base == 0 and exponent < 0:
+            if (base == 0 or _constant_zero(base)) and exponent < 0:
                 self.fail(f"division by zero: 0 raised to {exponent}")
             bits = base_bits * max(1, math.ceil(abs(exponent))) + exponent_bits
             if bits > MAX_NUMBER_BITS:
-                self.fail("numbers would grow beyond about 10000 digits")
+                self.fail(f"numbers would grow beyond about {MAX_NUMBER_DIGITS} digits")
         return sympy.Pow(base, exponent), bits
+
+
+def _constant_zero(value: sympy.Basic) -> bool:
+    """True for a constant (no symbols) that is exactly zero though not written as 0.
+
+    >>> _constant_zero(sympy.sin(1)**2 + sympy.cos(1)**2 - 1), _constant_zero(sympy.sqrt(2) - 1)
+    (True, False)
+    """
+    if value.free_symbols or value.is_Rational or not value.is_number:
+        return bool(value == 0)
+    try:
+        if abs(complex(sympy.N(value, 60))) > 1e-45:
+            return False
+    except (TypeError, ValueError, ArithmeticError):
+        return False
+    simplified = sympy.nsimplify(sympy.simplify(value))
+    return simplified == 0 or bool(value.equals(0))
+
+
+def _expands_to_zero(value: sympy.Basic) -> bool:
+    """True for a small expression in symbols that expands to zero, such as (m+1)^2 - m^2 - 2m - 1."""
+    if not value.free_symbols or not value.is_Add or sympy.count_ops(value) > 200:
+        return False
+    return sympy.expand(value) == 0
 
 
 def _bits(value: sympy.Basic) -> int:

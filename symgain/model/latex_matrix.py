@@ -42,15 +42,18 @@ from typing import Mapping
 import sympy as sp
 
 from ..errors import ExpressionError, ModelError, Where
-from .expressions import ALLOWED_FUNCTIONS, MAX_EXPONENT
+from .expressions import ALLOWED_FUNCTIONS, MAX_EXPONENT, MAX_LITERAL_DIGITS, MAX_NUMBER_BITS, _bits
 
 __all__ = ["parse_latex_matrix", "latex_name_to_identifier", "ENVIRONMENTS", "ALLOWED_COMMANDS",
-           "REFUSED_COMMANDS", "MAX_LATEX_LENGTH"]
+           "REFUSED_COMMANDS", "MAX_LATEX_LENGTH",
+           "MAX_LATEX_DEPTH", "MAX_SUPERSCRIPT_DEPTH"]
 
 #: Matrix environments that may hold the plant matrix.
 ENVIRONMENTS = ("bmatrix", "pmatrix", "matrix")
 
-MAX_LATEX_LENGTH = 20_000  # characters
+MAX_LATEX_LENGTH = 2_500  # characters: the LaTeX parser needs about 2.5 ms per character
+MAX_LATEX_DEPTH = 12  # groups ({ }, ( ), [ ]) inside one another: the parser slows down steeply
+MAX_SUPERSCRIPT_DEPTH = 4  # superscripts inside superscripts (x^{y^{2}} is 2 deep); 10 deep take seconds
 
 _GREEK = ("alpha beta gamma delta epsilon varepsilon zeta eta theta vartheta iota kappa lambda mu nu "
           "xi rho varrho sigma tau upsilon phi varphi chi psi omega Gamma Delta Theta Lambda Xi Sigma "
@@ -122,6 +125,36 @@ def _check_commands(text: str, where: Where | None) -> None:
         raise ModelError("refused '#' or '^^' in a LaTeX matrix (TeX macro syntax)", where=where)
     if "%" in text.replace("\\%", ""):
         raise ModelError("refused '%' (a TeX comment) in a LaTeX matrix", where=where)
+
+
+def _check_size(text: str, where: Where | None) -> None:
+    r"""Bound nesting, superscript nesting and number literals before the parser sees the text.
+
+    >>> _check_size(r"\begin{matrix} x^{x^{x^{x^{x^{2}}}}} \end{matrix}", None)
+    Traceback (most recent call last):
+    ...
+    symgain.errors.ModelError: superscripts nest 5 deep in the LaTeX matrix (limit 4)
+    """
+    stack: list[bool] = []  # True for a group that is a superscript
+    previous = ""
+    for ch in text:
+        if ch in "{([":
+            stack.append(ch == "{" and previous == "^")
+            if len(stack) > MAX_LATEX_DEPTH:
+                raise ModelError(f"groups nest more than {MAX_LATEX_DEPTH} deep in the LaTeX matrix",
+                                 where=where)
+            depth = sum(stack)
+            if depth > MAX_SUPERSCRIPT_DEPTH:
+                raise ModelError(f"superscripts nest {depth} deep in the LaTeX matrix "
+                                 f"(limit {MAX_SUPERSCRIPT_DEPTH})", where=where)
+        elif ch in "})]" and stack:
+            stack.pop()
+        if not ch.isspace():
+            previous = ch
+    for literal in re.findall(r"\d[\d.]*", text):
+        if len(literal) > MAX_LITERAL_DIGITS:
+            raise ModelError(f"number has more than {MAX_LITERAL_DIGITS} digits in the LaTeX matrix",
+                             where=where)
 
 
 def _split_top(text: str, separator: str) -> list[str]:
@@ -196,7 +229,7 @@ def _latex2sympy(text: str):
         from latex2sympy2 import latex2sympy
 
     sink = io.StringIO()
-    with redirect_stdout(sink), redirect_stderr(sink):
+    with redirect_stdout(sink), redirect_stderr(sink), sp.evaluate(False):  # sizes are checked on rebuild
         return latex2sympy(text)
 
 
@@ -227,6 +260,7 @@ def parse_latex_matrix(text: str, symbols: Mapping[str, sp.Symbol], *,
         raise ModelError(f"LaTeX matrix too long ({len(text)} characters, limit {MAX_LATEX_LENGTH})",
                          where=where)
     _check_commands(text, where)
+    _check_size(text, where)
     table = _cells(text, where)
     rows, cols = len(table), len(table[0])
     whole = "\\begin{bmatrix}" + " \\\\ ".join(" & ".join(r) for r in table) + "\\end{bmatrix}"
@@ -278,14 +312,17 @@ def _rebuild(value, symbols: Mapping[str, sp.Symbol], cell: str, where: Where) -
                 fail(f"LaTeX name {_quote(_latex_form(e.name))} (read as {_quote(identifier)}) "
                      "is not a declared parameter")
             return symbols[identifier]
-        if e.is_Add:
-            return sp.Add(*[build(a) for a in e.args])
-        if e.is_Mul:
-            return sp.Mul(*[build(a) for a in e.args])
+        if e.is_Add or e.is_Mul:
+            args = [build(a) for a in e.args]
+            if sum(_bits(a) for a in args) > MAX_NUMBER_BITS:
+                fail("numbers would grow too large")
+            return sp.Add(*args) if e.is_Add else sp.Mul(*args)
         if e.is_Pow:
             base, exponent = build(e.args[0]), build(e.args[1])
             if exponent.is_Rational and abs(exponent) > MAX_EXPONENT:
                 fail(f"exponent {exponent} is too large (limit {MAX_EXPONENT})")
+            if exponent.is_Rational and _bits(base) * max(1, abs(int(exponent))) > MAX_NUMBER_BITS:
+                fail("numbers would grow too large")
             if base == 0 and exponent.is_negative:
                 fail("division by zero")
             return sp.Pow(base, exponent)

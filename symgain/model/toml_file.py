@@ -27,22 +27,27 @@ symgain.errors.ExpressionError: cart.toml: plant.B[1][0]: undeclared symbol 'q' 
 """
 from __future__ import annotations
 
+import os
+import stat
 import sys
 from pathlib import Path
 from typing import Any
 
 import sympy as sp
 
-from ..errors import ModelError, Where
+from ..errors import ModelError, Where, printable
 from .expressions import parse_expression
-from .definition import PROTOTYPE_NAMES, S, Model, Parameter, TargetSpec
+from .definition import PROTOTYPE_NAMES, S, Model, Parameter, TargetSpec, _shown
 
 if sys.version_info >= (3, 11):
     import tomllib
 else:  # pragma: no cover
     import tomli as tomllib
 
-__all__ = ["load_model", "model_from_text", "parse_matrix", "parse_target"]
+__all__ = ["load_model", "model_from_text", "parse_matrix", "parse_target", "MAX_FILE_BYTES", "MAX_NESTING"]
+
+MAX_FILE_BYTES = 1_000_000  # a model file is text of a few kilobytes; refuse anything far larger
+MAX_NESTING = 20  # tables and arrays inside one another
 
 TOP_KEYS = {"name", "title", "parameters", "plant", "feedback", "estimator", "integral",
             "feedforward", "discrete", "input_limits", "notes", "simulation", "requirements"}
@@ -64,21 +69,53 @@ METHODS = ("canonical", "direction")  # design routes for several inputs (key me
 
 
 def load_model(path: str | Path) -> Model:
-    """Read and validate a model file."""
+    """Read and validate a model file: a regular file of at most :data:`MAX_FILE_BYTES` bytes.
+
+    Devices, FIFOs and folders are refused before they are opened (reading
+    ``/dev/zero`` would never end, opening a FIFO would wait for a writer).
+
+    >>> load_model("/dev/zero")
+    Traceback (most recent call last):
+    ...
+    symgain.errors.ModelError: /dev/zero: not a regular file (a character device); give a model file
+    """
+    if isinstance(path, bytes) or not isinstance(path, (str, os.PathLike)):
+        raise ModelError(f"load_model needs a file path, found {type(path).__name__} {_shown(path)}")
     path = Path(path)
+    where = Where(str(path))
     try:
-        text = path.read_text(encoding="utf-8")
+        info = os.stat(path)
     except FileNotFoundError:
-        raise ModelError("no such model file", where=Where(str(path))) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ModelError(f"cannot read the model file: {exc}", where=Where(str(path))) from None
+        raise ModelError("no such model file", where=where) from None
+    except (OSError, ValueError) as exc:
+        raise ModelError(f"cannot read the model file: {getattr(exc, 'strerror', None) or exc}",
+                         where=where) from None
+    if not stat.S_ISREG(info.st_mode):
+        kind = ("a folder" if stat.S_ISDIR(info.st_mode) else "a FIFO" if stat.S_ISFIFO(info.st_mode)
+                else "a character device" if stat.S_ISCHR(info.st_mode)
+                else "a block device" if stat.S_ISBLK(info.st_mode) else "a socket or device")
+        raise ModelError(f"not a regular file ({kind}); give a model file", where=where)
+    if info.st_size > MAX_FILE_BYTES:
+        raise ModelError(f"file is {info.st_size} bytes; a model file may have at most {MAX_FILE_BYTES}",
+                         where=where)
+    try:
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_FILE_BYTES + 1)
+    except OSError as exc:
+        raise ModelError(f"cannot read the model file: {exc.strerror or exc}", where=where) from None
+    if len(data) > MAX_FILE_BYTES:
+        raise ModelError(f"file grew beyond {MAX_FILE_BYTES} bytes while being read", where=where)
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ModelError(f"not UTF-8 text (byte {exc.start})", where=where) from None
     return model_from_text(text, str(path))
 
 
 def _check_keys(table: dict, allowed: set[str], where: Where) -> None:
     unknown = sorted(set(table) - allowed)
     if unknown:
-        raise ModelError(f"unknown key {unknown[0]!r}; expected one of {', '.join(sorted(allowed))}",
+        raise ModelError(f"unknown key {_shown(unknown[0])}; expected one of {', '.join(sorted(allowed))}",
                          where=where)
 
 
@@ -86,9 +123,9 @@ def _names(value: Any, where: Where) -> tuple[str, ...]:
     if value is None:
         return ()
     if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
-        raise ModelError(f"must be a list of names, found {value!r}", where=where)
+        raise ModelError(f"must be a list of names, found {_shown(value)}", where=where)
     if len(set(value)) != len(value):
-        raise ModelError(f"names repeat in {value!r}", where=where)
+        raise ModelError(f"names repeat in {_shown(value)}", where=where)
     return tuple(value)
 
 
@@ -99,7 +136,7 @@ def parse_matrix(value: Any, symbols: dict, where: Where) -> sp.Matrix:
 
         return parse_latex_matrix(value, symbols, where=where)
     if not isinstance(value, list) or not value or not all(isinstance(r, list) for r in value):
-        raise ModelError(f"must be a list of rows (lists), found {str(value)[:60]!r}", where=where)
+        raise ModelError(f"must be a list of rows (lists), found {_shown(value)}", where=where)
     width = len(value[0])
     rows = []
     for i, row in enumerate(value):
@@ -113,7 +150,7 @@ def parse_matrix(value: Any, symbols: dict, where: Where) -> sp.Matrix:
 
 def _expr_list(value: Any, symbols: dict, where: Where, extra=None) -> tuple:
     if not isinstance(value, list):
-        raise ModelError(f"must be a list, found {value!r}", where=where)
+        raise ModelError(f"must be a list, found {_shown(value)}", where=where)
     return tuple(parse_expression(v, symbols, where=where.at(i), extra=extra) for i, v in enumerate(value))
 
 
@@ -168,7 +205,7 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
         values["target_split"] = table["target_split"]
     if kind == "prototype":
         if values["prototype"] not in PROTOTYPE_NAMES:
-            raise ModelError(f"unknown prototype {table['prototype']!r}; choose one of "
+            raise ModelError(f"unknown prototype {_shown(table['prototype'])}; choose one of "
                              f"{', '.join(PROTOTYPE_NAMES)}", where=where.child("prototype"))
     return TargetSpec(kind, values, where)
 
@@ -189,8 +226,8 @@ def _parameters(table: Any, file: str) -> tuple[Parameter, ...]:
         if isinstance(spec, (int, float)) and not isinstance(spec, bool):
             spec = {"nominal": spec}
         if not isinstance(spec, dict):
-            raise ModelError(f"must be a table such as {{ sign = \"positive\", range = [1, 2] }}, found {spec!r}",
-                             where=pw)
+            raise ModelError("must be a table such as { sign = \"positive\", range = [1, 2] }, found "
+                             f"{_shown(spec)}", where=pw)
         _check_keys(spec, PARAMETER_KEYS, pw)
         params.append(Parameter.declare(name, where=pw, **spec))
     return tuple(params)
@@ -198,11 +235,55 @@ def _parameters(table: Any, file: str) -> tuple[Parameter, ...]:
 
 def model_from_text(text: str, file: str = "<model>") -> Model:
     """Parse TOML text into a validated :class:`Model`."""
+    if not isinstance(text, str):
+        raise ModelError(f"model text must be a string, found {type(text).__name__}", where=Where(file))
+    if len(text) > MAX_FILE_BYTES:
+        raise ModelError(f"model text is longer than {MAX_FILE_BYTES} characters", where=Where(file))
+    depth = _nesting(text)
+    if depth > MAX_NESTING:
+        raise ModelError(f"tables and arrays nest {depth} deep; at most {MAX_NESTING} levels are read",
+                         where=Where(file))
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ModelError(f"TOML syntax error: {exc}", where=Where(file)) from None
+    except RecursionError:
+        raise ModelError("TOML nested too deeply", where=Where(file)) from None
     return model_from_dict(data, file)
+
+
+def _nesting(text: str) -> int:
+    """Deepest nesting of ``[ ]`` and ``{ }`` outside strings and comments (an upper estimate).
+
+    >>> _nesting('a = [[1, 2], {b = "[[["}]  # [[[')
+    2
+    """
+    depth = deepest = 0
+    quote = None
+    i, n = 0, len(text)
+    while i < n:
+        ch = text[i]
+        if quote:
+            if ch == "\\" and quote == '"':
+                i += 2
+                continue
+            if ch == quote:
+                quote = None
+        elif ch in "\"'":
+            quote = ch
+        elif ch == "#":
+            end = text.find("\n", i)
+            i = n if end < 0 else end
+            continue
+        elif ch in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+        elif ch in "]}":
+            depth = max(0, depth - 1)
+        elif ch == "\n" and depth == 0:
+            pass
+        i += 1
+    return deepest
 
 
 def model_from_dict(data: dict, file: str = "<model>") -> Model:
@@ -269,7 +350,9 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
 
     extra.update(read_simulation_tables(data, symbols, states, inputs, outputs, file))
     title = data.get("title", "")
-    return Model(name=data["name"], title=str(title), parameters=params, states=states, inputs=inputs,
+    if not isinstance(title, str):
+        raise ModelError(f"title must be text, found {_shown(title)}", where=top.child("title"))
+    return Model(name=data["name"], title=title, parameters=params, states=states, inputs=inputs,
                  outputs=outputs, A=A, B=B, C=C, D=D, source=file, notes=notes, extra=extra,
                  feedforward=feedforward, **targets)
 
