@@ -106,3 +106,16 @@ def test_robust_command(tmp_path, capsys):
     assert "stable ratio tau/tau_hat, exact" in out.out
     assert (tmp_path / "sorting_conveyor-poles.png").stat().st_size > 10000
     assert out.err == ""
+
+
+def test_free_gains_are_refused_in_one_line():
+    """A design with free gains (a family) is refused with exit 2, not an internal error."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    model = Path(__file__).parent.parent / "examples" / "twin_thruster_boat.toml"
+    done = subprocess.run([sys.executable, "-m", "symgain", "robust", str(model), "--mismatch", "m"],
+                          capture_output=True, text=True, cwd=Path(__file__).parent.parent)
+    assert done.returncode == 2, done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1 and "k_21" in done.stderr

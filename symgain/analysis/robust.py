@@ -145,6 +145,11 @@ def analyze_mismatch(design: Design, mismatched: list[str], *, exact: bool = Tru
         raise DesignError("the feedback gain is in compact form (a large plant): the closed-form "
                           "Routh-Hurwitz analysis needs expanded gains and is not affordable here",
                           where=Where(model.source))
+    free = sorted({str(g) for part in design.parts() for g in part.free_gains})
+    if free:
+        raise DesignError("the gains still contain free gains " + ", ".join(free) + " (the target leaves "
+                          "them open); fix them in the pattern, or choose method = \"canonical\", before a "
+                          "mismatch analysis", where=Where(model.source))
     if not mismatched:
         raise ModelError("name at least one parameter to mismatch")
     taken = {p.name for p in model.parameters} | {"s"}
