@@ -56,7 +56,7 @@ def write(tmp_path, text, name="cart.toml"):
 def test_derive_prints_the_gains(capsys):
     code, out, err = run(["derive", CART], capsys)
     assert code == 0 and err == ""
-    assert "2*m*w**2" in out and "-c + 3*m*w" in out
+    assert "2*m*w^2" in out and "-c + 3*m*w" in out
 
 
 def test_derive_json_contract_for_the_cart(capsys):

@@ -103,7 +103,8 @@ def test_robust_command(tmp_path, capsys):
     code = main(["robust", DEMO, "--mismatch", "tau", "--points", "50", "-o", str(tmp_path), "--quiet"])
     out = capsys.readouterr()
     assert code == 0
-    assert "stable ratio tau/tau_hat, exact" in out.out
+    assert "stable ratio r_tau = tau/tau_hat, exact: 0 < r_tau < " in out.out
+    assert "loop analysed: state feedback u = -K x" in out.out
     assert (tmp_path / "sorting_conveyor-poles.png").stat().st_size > 10000
     assert out.err == ""
 

@@ -65,4 +65,4 @@ def test_json_sensitivity_reads_back(demo):
 def test_sensitivity_command(capsys):
     assert main(["sensitivity", DEMO, "--formulas"]) == 0
     out = capsys.readouterr().out
-    assert "K[F_cmd,x]" in out and "+3.000" in out and "d K[F_cmd,x] / d w = 3*m*tau*w**2" in out
+    assert "K[F_cmd,x]" in out and "+3.000" in out and "d K[F_cmd,x] / d w = 3*m*tau*w^2" in out

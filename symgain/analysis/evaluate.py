@@ -31,12 +31,13 @@ import numpy as np
 import sympy as sp
 
 
-from ..design import Design, gain_labels
+from ..design import EXTRA_SYMBOLS, Design, gain_labels
 from ..errors import DesignError, ModelError, Where
+from ..mathtext import math_text
 
 __all__ = ["GainEntry", "gain_entries", "gain_functions", "GainEvaluator"]
 
-_EXTRA_SYMBOL = {"integral_gain": "Ki"}
+_EXTRA_SYMBOL = EXTRA_SYMBOLS
 
 
 @dataclass(frozen=True)
@@ -103,8 +104,13 @@ class GainEvaluator:
         self._keyword = {name: mangle(name, PYTHON_RESERVED) for name in self.names}
         namespace: dict = {}
         exec(compile(python_module(design), f"<gains of {model.name}>", "exec"), namespace)
-        self._functions = [(namespace[fn.name], fn.shape) for fn in design_functions(design)
-                           if not fn.name.endswith(f"_branch_{fn.branch}")]  # the branch shown, not the others
+        functions = [fn for fn in design_functions(design)
+                     if not fn.name.endswith(f"_branch_{fn.branch}")]  # the branch shown, not the others
+        self._functions = [(namespace[fn.name], fn.shape) for fn in functions]
+        self._plain = {}  # the emitted module's condition text -> plain mathematics
+        for fn in functions:
+            self._plain.update({sp.sstr(c) + " != 0": math_text(c) + " != 0" for c in fn.conditions})
+            self._plain.update({sp.sstr(c) + " >= 0": math_text(c) + " >= 0" for c in fn.nonnegative})
 
     def _args(self, values: dict) -> dict[str, np.ndarray]:
         unknown = set(values) - set(self.names)
@@ -145,7 +151,8 @@ class GainEvaluator:
                 try:
                     func(**args)
                 except ValueError as error:
-                    failed.append(str(error).split("condition ", 1)[-1].split(" fails", 1)[0])
+                    said = str(error).split("condition ", 1)[-1].split(" fails", 1)[0]
+                    failed.append(self._plain.get(said, said))
         return list(dict.fromkeys(failed))
 
 

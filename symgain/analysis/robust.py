@@ -25,6 +25,7 @@ import sympy as sp
 from ..design import Design
 from ..errors import DesignError, ModelError, Where
 from ..model import S
+from .loops import closed_loop, loop_kind
 from .numeric import lambdify
 
 __all__ = ["routh_hurwitz", "hurwitz_determinants", "positive_part", "MismatchAnalysis",
@@ -113,11 +114,12 @@ class MismatchAnalysis:
     mismatched: list[str]
     hats: dict  # name -> estimate symbol
     ratios: dict  # name -> ratio symbol
-    closed_loop_polynomial: sp.Expr
+    closed_loop_polynomial: sp.Expr | None  # None when the loop is too large or not rational
     coefficients: list  # highest power first, polynomial in the ratios
-    conditions: list  # each must be > 0
+    conditions: list | None  # each must be > 0; None: no closed form, eigenvalues only
     ranges: dict = field(default_factory=dict)  # name -> RatioRange
     crosscheck: dict = field(default_factory=dict)  # points, agree, disagree, marginal
+    loop: str = ""  # which loop was analysed (see symgain.loops)
 
     def substitutions(self, values: dict[str, float], ratios: dict[str, float]) -> dict:
         """Numeric values for every symbol of the conditions (estimates take the parameter values)."""
@@ -139,10 +141,11 @@ def _fresh(name: str, taken: set[str], **assumptions) -> sp.Symbol:
 def analyze_mismatch(design: Design, mismatched: list[str], *, exact: bool = True) -> MismatchAnalysis:
     """Closed-loop polynomial and Routh-Hurwitz conditions with the ratios true/estimate."""
     model = design.model
-    if design.feedback is None:
-        raise DesignError("mismatch analysis needs a [feedback] design", where=Where(model.source))
-    if design.feedback.definitions:
-        raise DesignError("the feedback gain is in compact form (a large plant): the closed-form "
+    if not loop_kind(design):
+        raise DesignError("mismatch analysis needs a loop: [feedback] or [integral] (an estimator alone "
+                          "closes none)", where=Where(model.source))
+    if any(part.definitions for part in design.parts()):
+        raise DesignError("the gains are in compact form (a large plant): the closed-form "
                           "Routh-Hurwitz analysis needs expanded gains and is not affordable here",
                           where=Where(model.source))
     free = sorted({str(g) for part in design.parts() for g in part.free_gains})
@@ -169,24 +172,46 @@ def analyze_mismatch(design: Design, mismatched: list[str], *, exact: bool = Tru
         ratios[name] = _fresh(f"r_{name}", taken, positive=True)
         to_hat[param.symbol] = hats[name]
         to_true[param.symbol] = ratios[name] * hats[name]
-    K = design.feedback.gain.xreplace(to_hat)
-    A, B = model.A.xreplace(to_true), model.B.xreplace(to_true)
-    closed = sp.Matrix(A - B * K)
-    poly = closed.charpoly(S)
-    coeffs = [sp.cancel(sp.together(c)) for c in poly.all_coeffs()]
-    denominators = [sp.fraction(c)[1] for c in coeffs]
-    common = sp.lcm(denominators) if len(denominators) > 1 else denominators[0]
-    if not common.is_positive:
-        common = common**2
-    coeffs = [sp.expand(sp.cancel(c * common)) for c in coeffs]
-    conditions = []
-    for cond in routh_hurwitz(coeffs):
-        kept = positive_part(cond) if exact else cond
-        if kept.is_positive or (kept.is_number and kept > 0):
-            continue
-        conditions.append(kept)
-    char = sp.Add(*[c * S ** (len(coeffs) - 1 - i) for i, c in enumerate(coeffs)])
-    return MismatchAnalysis(design, list(mismatched), hats, ratios, char, coeffs, conditions)
+    loop = closed_loop(design, to_hat)
+    closed = loop.matrix.xreplace(to_true)
+    conditions, char, coeffs = None, None, []
+    if _closed_form_feasible(closed, list(ratios.values())):
+        poly = closed.charpoly(S)
+        coeffs = [sp.cancel(sp.together(c)) for c in poly.all_coeffs()]
+        denominators = [sp.fraction(c)[1] for c in coeffs]
+        common = sp.lcm(denominators) if len(denominators) > 1 else denominators[0]
+        if not common.is_positive:
+            common = common**2
+        coeffs = [sp.expand(sp.cancel(c * common)) for c in coeffs]
+        conditions = []
+        for cond in routh_hurwitz(coeffs):
+            kept = positive_part(cond) if exact else cond
+            if kept.is_positive or (kept.is_number and kept > 0):
+                continue
+            conditions.append(kept)
+        char = sp.Add(*[c * S ** (len(coeffs) - 1 - i) for i, c in enumerate(coeffs)])
+        if not all(_polynomial_in(c, list(ratios.values())) for c in conditions):
+            conditions = None
+    return MismatchAnalysis(design, list(mismatched), hats, ratios, char, coeffs, conditions,
+                            loop=loop.description)
+
+
+CLOSED_FORM_LIMIT = 4  # largest loop whose characteristic polynomial is expanded symbolically
+
+
+def _closed_form_feasible(matrix: sp.Matrix, ratios) -> bool:
+    """Small enough for a symbolic characteristic polynomial, and rational in the ratios."""
+    if matrix.rows > CLOSED_FORM_LIMIT or sp.count_ops(matrix) > 400:
+        return False
+    return all(e.is_rational_function(*ratios) for e in matrix)
+
+
+def _polynomial_in(expr, ratios) -> bool:
+    try:
+        sp.Poly(expr, *ratios)
+    except sp.PolynomialError:
+        return False
+    return True
 
 
 def _union_positive(polys: list[np.ndarray]) -> list[tuple[float, float]]:
@@ -235,12 +260,64 @@ class _RatioPolys:
         return _union_positive([np.trim_zeros(p, "f") if np.any(p) else np.zeros(1) for p in polys])
 
 
+class _RatioEigenvalues:
+    """Without a closed form: the stable ratios from eigenvalues of the loop on a ratio grid.
+
+    The ratio runs over 0.001 .. 1000 (log-spaced); every change of verdict
+    between neighbours is refined by bisection. Stable beyond the last grid
+    point is reported as unbounded.
+    """
+
+    def __init__(self, analysis: MismatchAnalysis, name: str, count: int = 121):
+        self.name, self.loop = name, ClosedLoop(analysis.design)
+        self.ratios = np.logspace(-3, 3, count)
+
+    def _stable(self, values, r) -> bool:
+        true = dict(values, **{self.name: values[self.name] * r})
+        M = self.loop(true, values)
+        if not np.all(np.isfinite(M)):
+            return False
+        return bool(np.max(np.linalg.eigvals(M).real) < 0)
+
+    def __call__(self, values: dict[str, float]) -> list[tuple[float, float]]:
+        verdicts = [self._stable(values, r) for r in self.ratios]
+        edges = []
+        for k in range(1, len(self.ratios)):
+            if verdicts[k] != verdicts[k - 1]:
+                lo, hi = self.ratios[k - 1], self.ratios[k]
+                for _ in range(30):
+                    mid = np.sqrt(lo * hi)
+                    if self._stable(values, mid) == verdicts[k - 1]:
+                        lo = mid
+                    else:
+                        hi = mid
+                edges.append(float(np.sqrt(lo * hi)))
+        out, start = [], 0.0 if verdicts[0] else None
+        for edge in edges:
+            if start is None:
+                start = edge
+            else:
+                out.append((start, edge))
+                start = None
+        if start is not None:
+            out.append((start, np.inf))
+        return out
+
+
+def _scanner(analysis: MismatchAnalysis, name: str):
+    if analysis.conditions is None:
+        return _RatioEigenvalues(analysis, name)
+    return _RatioPolys(analysis, name)
+
+
 def stable_ratio_set(analysis: MismatchAnalysis, name: str, values: dict[str, float]) -> list[tuple[float, float]]:
     """Numeric stable set of the ratio of ``name`` (other ratios 1) at the given parameter values."""
-    return _RatioPolys(analysis, name)(values)
+    return _scanner(analysis, name)(values)
 
 
 def _exact_set(analysis: MismatchAnalysis, name: str, values: dict[str, float]):
+    if analysis.conditions is None:
+        return None
     r = analysis.ratios[name]
     exact_values = {k: sp.nsimplify(v, rational=True) for k, v in values.items()}
     subs = analysis.substitutions(exact_values, {})
@@ -273,9 +350,9 @@ def _grid_values(model, skip: str, levels: int = 5, cap: int = 4000) -> list[dic
     return [dict(zip([n for n, _ in axes], combo)) for combo in itertools.product(*[v for _, v in axes])]
 
 
-def grid_size(model, name: str) -> int:
+def grid_size(model, name: str, closed_form: bool = True) -> int:
     """Number of grid points :func:`ratio_ranges` scans for ``name``."""
-    return len(_grid_values(model, name))
+    return len(_grid_values(model, name, cap=4000 if closed_form else 60))
 
 
 def ratio_ranges(analysis: MismatchAnalysis, *, progress=None, exact: bool = True) -> dict[str, RatioRange]:
@@ -285,7 +362,7 @@ def ratio_ranges(analysis: MismatchAnalysis, *, progress=None, exact: bool = Tru
     out = {}
     for name in analysis.mismatched:
         exact_set = _exact_set(analysis, name, nominal) if exact else None
-        scan = _RatioPolys(analysis, name)
+        scan = _scanner(analysis, name)
         intervals = scan(nominal)
         p = model.parameter(name)
         declared = (p.range[0] / p.nominal, p.range[1] / p.nominal) if p.range else None
@@ -293,7 +370,7 @@ def ratio_ranges(analysis: MismatchAnalysis, *, progress=None, exact: bool = Tru
         declared_ok = None
         if declared is not None:
             declared_ok = any(lo < declared[0] and declared[1] < hi for lo, hi in intervals)
-        grid = _grid_values(model, name)
+        grid = _grid_values(model, name, cap=4000 if analysis.conditions is not None else 60)
         low, high = 0.0, np.inf
         for point in grid:
             here = _around(scan(point))
@@ -310,23 +387,22 @@ def ratio_ranges(analysis: MismatchAnalysis, *, progress=None, exact: bool = Tru
 
 
 class ClosedLoop:
-    """A(true) - B(true) K(estimates), evaluated directly from the model (no polynomial involved)."""
+    """The loop of every designed part (see :mod:`symgain.loops`), compiled: true plant, estimated controller."""
 
     def __init__(self, design: Design):
         model = design.model
         self.names = [p.name for p in model.parameters]
-        args = [p.symbol for p in model.parameters]
-        self._A = lambdify(args, model.A, modules="numpy")
-        self._B = lambdify(args, model.B, modules="numpy")
-        self._K = lambdify(args, design.feedback.gain, modules="numpy")
+        true = [p.symbol for p in model.parameters]
+        hats = [sp.Dummy(f"{p.name}_hat", **p.symbol.assumptions0) for p in model.parameters]
+        loop = closed_loop(design, dict(zip(true, hats)))
+        self.description = loop.description
+        self._M = lambdify(true + hats, loop.matrix, modules="numpy")
 
     def __call__(self, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:
         true = [true_values[n] for n in self.names]
         est = [estimates.get(n, true_values[n]) for n in self.names]
-        A = np.array(self._A(*true), dtype=float)
-        B = np.array(self._B(*true), dtype=float)
-        K = np.real(np.array(self._K(*est), dtype=complex))
-        return A - B @ K
+        with np.errstate(all="ignore"):
+            return np.real(np.array(self._M(*true, *est), dtype=complex))
 
 
 def closed_loop_numeric(design: Design, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:
@@ -337,6 +413,9 @@ def closed_loop_numeric(design: Design, true_values: dict[str, float], estimates
 def cross_check(analysis: MismatchAnalysis, n_points: int = 200, seed: int = 0, progress=None) -> dict:
     """Eigenvalue verdicts against the Routh-Hurwitz verdict at sampled points."""
     model = analysis.design.model
+    if analysis.conditions is None:  # no closed form: the eigenvalues are the only verdict
+        analysis.crosscheck = {"points": 0, "agree": 0, "disagree": 0, "marginal": 0, "stable": 0}
+        return analysis.crosscheck
     rng = np.random.default_rng(seed)
     names = [p.name for p in model.parameters]
     funcs = [lambdify(list(analysis.substitutions({n: 0 for n in names}, {}).keys()), c, "numpy")

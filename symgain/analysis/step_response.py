@@ -31,10 +31,9 @@ import sympy as sp
 from .numeric import lambdify
 
 from ..design import Design
-from ..design.compact import numeric_function
 from ..errors import DesignError, Where
 
-__all__ = ["StepRun", "step_responses", "corner_points"]
+__all__ = ["StepRun", "step_responses", "corner_points", "loop_description"]
 
 
 @dataclass(frozen=True)
@@ -65,47 +64,60 @@ def _label(point: dict, nominal: dict, units: dict) -> str:
 
 
 def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, progress=None) -> list[StepRun]:
-    """One step response per point of :func:`corner_points` (first output, first input)."""
-    model = design.model
-    if design.feedback is None:
-        raise DesignError("a step response needs a [feedback] design", where=Where(model.source))
-    if model.n_inputs != 1:
-        raise DesignError("step responses are drawn for single-input plants only", where=Where(model.source))
-    args = [p.symbol for p in model.parameters]
-    names = [p.name for p in model.parameters]
-    f_A, f_B = lambdify(args, model.A, "numpy"), lambdify(args, model.B, "numpy")
-    C = model.C if model.C is not None else sp.Matrix([[1] + [0] * (model.n_states - 1)])
-    f_C = lambdify(args, C[0, :], "numpy")
-    f_K = numeric_function(args, design.feedback.gain, design.feedback.definitions)
+    """One step response per point of :func:`corner_points` (first reference, first output).
 
-    def numeric(point):
-        vals = [point[n] for n in names]
-        return (np.array(f_A(*vals), dtype=float), np.array(f_B(*vals), dtype=float),
-                np.array(f_C(*vals), dtype=float), np.real(np.array(f_K(*vals), dtype=complex)))
+    The loop holds every designed part (:func:`symgain.analysis.loops.closed_loop`): integral action
+    when the design has it, the estimator in the loop when it has one.
+    """
+    from .loops import closed_loop
+
+    model = design.model
+    loop_design = design
+    if design.feedback is None and design.integral is None:
+        raise DesignError("a step response needs a loop: [feedback] or [integral]", where=Where(model.source))
+    if model.n_inputs != 1 and design.integral is None:
+        raise DesignError("step responses of state feedback are drawn for single-input plants only "
+                          "(add [integral] for a reference per output)", where=Where(model.source))
+    true = [p.symbol for p in model.parameters]
+    hats = [sp.Dummy(f"{p.name}_hat", **p.symbol.assumptions0) for p in model.parameters]
+    loop = closed_loop(loop_design, dict(zip(true, hats)))
+    f_loop = lambdify(true + hats, [loop.matrix, loop.reference[:, 0], loop.output[0, :],
+                                       loop.feedthrough[0, 0]], "numpy")
+    names = [p.name for p in model.parameters]
+
+    def numeric(point, controller):
+        vals = [point[n] for n in names] + [controller[n] for n in names]
+        with np.errstate(all="ignore"):
+            M, R, Cm, Dm = f_loop(*vals)
+        return (np.real(np.array(M, dtype=complex)), np.real(np.array(R, dtype=complex)).reshape(-1, 1),
+                np.real(np.array(Cm, dtype=complex)).reshape(1, -1), float(np.real(complex(Dm))))
+
+    def reference_gain(M, R, Cm, Dm) -> float:
+        if not loop.needs_reference_gain:
+            return 1.0
+        dc = float((Dm - Cm @ np.linalg.solve(M, R)).item())
+        return 1.0 / dc if dc != 0 else 1.0
 
     points = corner_points(design)
     nominal = points[0]
     units = {p.name: p.unit for p in model.parameters}
-    A0, B0, C0, K0 = numeric(nominal)
-    closed0 = A0 - B0 @ K0
-    N0 = -1.0 / float((C0 @ np.linalg.solve(closed0, B0)).item())
+    N0 = reference_gain(*numeric(nominal, nominal))
     loops = []
     for point in points:
-        A, B, Cm, K = numeric(point)
-        if gains == "scheduled":
-            closed = A - B @ K
-            N = -1.0 / float((Cm @ np.linalg.solve(closed, B)).item())
-        else:
-            closed, N = A - B @ K0, N0
-        eig = np.linalg.eigvals(closed)
-        loops.append((point, closed, B * N, Cm, bool(np.max(eig.real) < 0), float(np.min(np.abs(eig.real)))))
-    slowest0 = loops[0][5]
-    slowest = min([lp[5] for lp in loops if lp[4]] + [slowest0])
+        controller = point if gains == "scheduled" else nominal
+        M, R, Cm, Dm = numeric(point, controller)
+        N = reference_gain(M, R, Cm, Dm) if gains == "scheduled" else N0
+        if not np.all(np.isfinite(M)):
+            M = np.nan_to_num(M)
+        eig = np.linalg.eigvals(M)
+        loops.append((point, M, R * N, Cm, Dm * N, bool(np.max(eig.real) < 0), float(np.min(np.abs(eig.real)))))
+    slowest0 = loops[0][6]
+    slowest = min([lp[6] for lp in loops if lp[5]] + [slowest0])
     horizon = min(6.0 / max(slowest, 1e-9), 10 * 6.0 / max(slowest0, 1e-9))  # at most 10x the nominal
     t = np.linspace(0.0, horizon, n_samples)
     runs = []
-    for point, closed, BN, Cm, stable, _ in loops:
-        system = scipy.signal.StateSpace(closed, BN, Cm, np.zeros((1, 1)))
+    for point, M, RN, Cm, DN, stable, _ in loops:
+        system = scipy.signal.StateSpace(M, RN, Cm, np.array([[DN]]))
         with np.errstate(all="ignore"), warnings.catch_warnings():
             warnings.simplefilter("ignore")  # an unstable corner may overflow; it is drawn clipped
             _, y = scipy.signal.step(system, T=t)
@@ -113,3 +125,10 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
         if progress is not None:
             progress(1)
     return runs
+
+
+def loop_description(design: Design) -> str:
+    """Which loop :func:`step_responses` draws, in words."""
+    from .loops import closed_loop
+
+    return closed_loop(design).description

@@ -21,14 +21,15 @@ __all__ = ["main", "COMMAND_MODULES", "whole_number", "positive_number"]
 # one module per command group; each defines add_to(subparsers)
 COMMAND_MODULES = ["symgain.cli.core", "symgain.cli.emit", "symgain.cli.sweep", "symgain.cli.simulate"]
 
-EPILOG = """examples:
-  symgain demo
-  symgain derive examples/greenhouse_cart.toml
-  symgain derive examples/greenhouse_cart.toml --json
-  symgain check examples/greenhouse_cart.toml --points 50 --seed 3
-  symgain emit examples/greenhouse_cart.toml --to python --to c --to latex -o build
-  symgain schedule examples/greenhouse_cart.toml --over m=15:90:16
-  symgain robust symgain/data/demo_conveyor.toml --mismatch m tau
+EPILOG = """examples (the first writes the built-in model file used by the others):
+  symgain demo --write-model conveyor.toml
+  symgain derive conveyor.toml
+  symgain derive conveyor.toml --at m=30,tau=0.5
+  symgain derive conveyor.toml --json
+  symgain check conveyor.toml --points 50 --seed 3
+  symgain emit conveyor.toml --to python --to c --to latex -o build
+  symgain schedule conveyor.toml --over m
+  symgain robust conveyor.toml --mismatch m tau
 """
 
 

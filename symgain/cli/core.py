@@ -46,6 +46,8 @@ def add_to(sub) -> None:
     p.add_argument("--sensitivity", action="store_true",
                    help="with --json: include the partial derivatives dK/dp also for gains in compact "
                    "form (expanded gains always carry them)")
+    p.add_argument("--at", metavar="NAME=VALUE,...",
+                   help="also print every gain as a number at this point (other parameters at nominal)")
     p.set_defaults(run=run_derive)
 
     p = sub.add_parser("check", help="cross-check the formulas numerically against scipy",
@@ -60,8 +62,48 @@ def add_to(sub) -> None:
 
     p = sub.add_parser("demo", help="derive and check the built-in example", formatter_class=_FMT,
                        description="Run derive and check on an example model shipped with symgain.",
-                       epilog="example:\n  symgain demo")
+                       epilog="examples:\n  symgain demo\n  symgain demo --write-model conveyor.toml")
+    p.add_argument("--write-model", metavar="FILE",
+                   help="write the built-in model file to FILE (to edit or to try other commands on)")
     p.set_defaults(run=run_demo)
+
+
+def parse_point(text: str, model) -> dict[str, float]:
+    """``m=30,w=2`` -> {"m": 30.0, "w": 2.0}, names checked against the model."""
+    import math
+
+    from ..errors import ModelError, printable
+
+    point = {}
+    for item in filter(None, (t.strip() for t in text.split(","))):
+        name, eq, value = item.partition("=")
+        name = name.strip()
+        if not eq or name not in model.symbols:
+            raise ModelError(f"--at expects NAME=VALUE with declared names, found {item!r}; declared: "
+                             + (", ".join(model.symbols) or "none"))
+        try:
+            point[name] = float(value)
+        except ValueError:
+            raise ModelError(f"--at {name}: {printable(value.strip(), 40)!r} is not a number") from None
+        if not math.isfinite(point[name]):
+            raise ModelError(f"--at {name}: the value must be a finite number")
+    return point
+
+
+def _values_at(design, point) -> list[str]:
+    from ..analysis.evaluate import GainEvaluator
+    from ..analysis.loops import settle_free_gains
+
+    settled, note = settle_free_gains(design)
+    evaluator = GainEvaluator(settled)
+    gains, valid = evaluator(point)
+    where = ", ".join(f"{k} = {v:g}" for k, v in {**design.model.nominal_values(), **point}.items())
+    lines = [f"gains at {where or 'the numeric plant'}:"] + ([f"  note: {note}"] if note else [])
+    lines += [f"  {e.label} = {float(g):.6g}" for e, g in zip(evaluator.entries, gains)]
+    if not bool(valid):
+        failed = evaluator.failed_conditions(point)
+        lines.append("  NOT valid here: " + ("; ".join(failed) if failed else "a gain is not finite"))
+    return lines
 
 
 def run_derive(args) -> int:
@@ -70,8 +112,15 @@ def run_derive(args) -> int:
     from ..emit.terminal import format_design
     from ..model.toml_file import load_model
 
-    design = derive_and_warn(load_model(args.model), form=args.form)
-    print(design_to_json(design, sensitivity=True if args.sensitivity else None) if args.json else format_design(design), end="" if not args.json else "\n")
+    model = load_model(args.model)
+    point = parse_point(args.at, model) if args.at else None
+    design = derive_and_warn(model, form=args.form)
+    if args.json:
+        print(design_to_json(design, sensitivity=True if args.sensitivity else None))
+        return 0
+    print(format_design(design), end="")
+    if point is not None:
+        print("\n" + "\n".join(_values_at(design, point)))
     return 0
 
 
@@ -135,6 +184,17 @@ def run_demo(args) -> int:
     from ..model.toml_file import model_from_text
 
     text = resources.files("symgain.data").joinpath(DEMO_FILE).read_text(encoding="utf-8")
+    if args.write_model:
+        from pathlib import Path
+
+        from ..emit.files import write_atomic
+        from ..errors import OutputError, printable
+
+        target = Path(args.write_model)
+        if not target.parent.is_dir():
+            raise OutputError(f"folder {printable(str(target.parent), 100)!r} does not exist")
+        print(f"wrote {write_atomic(target, text)}")
+        return 0
     start = time.perf_counter()
     model = model_from_text(text, f"<built-in {DEMO_FILE}>")
     design = derive_and_warn(model)
@@ -145,8 +205,8 @@ def run_demo(args) -> int:
     args.points, args.seed, args.tolerance = 20, 0, DEFAULT_TOLERANCE
     print("Checked them numerically at 20 parameter points against scipy.signal.place_poles:\n")
     code = _print_check(design, args)
-    print("\nNext: write your own model file (see README.md) and run 'symgain derive FILE' and "
-          "'symgain check FILE'.")
+    print("\nNext: 'symgain demo --write-model conveyor.toml' writes this model to a file to edit; then run "
+          "'symgain derive FILE' and 'symgain check FILE'.")
     print("Gains from a linear model must be validated in simulation and on the machine with safe limits;")
     print("local codes, safety standards and licensed practice take precedence.")
     return code

@@ -5,6 +5,7 @@ import argparse
 
 from ..emit import TARGETS  # light: the emitters themselves load on use
 from .core import add_form_option
+from .sweep import output_option
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build
@@ -25,7 +26,7 @@ def add_to(sub) -> None:
     p.add_argument("model", help="model file (TOML)")
     p.add_argument("--to", action="append", choices=TARGETS, required=True, metavar="TARGET",
                    help=f"target language, repeatable: {', '.join(TARGETS)}")
-    p.add_argument("-o", "--out", default=".", metavar="DIR", help="output folder (default: current)")
+    output_option(p)
     p.add_argument("--name", metavar="PREFIX",
                    help="file name, Python module and C prefix (default: the model's name)")
     p.add_argument("--precision", choices=("double", "single"), default="double",
@@ -40,18 +41,20 @@ def add_to(sub) -> None:
 def run_emit(args) -> int:
     from . import derive_and_warn
     from ..emit import emit
+    from ..emit.files import default_folder
     from ..errors import ModelError
     from ..model.toml_file import load_model
 
     design = derive_and_warn(load_model(args.model), form=args.form)
+    folder = args.output or default_folder(design.model.name)
     sections, figures = None, []
     if args.with_simulation:
         if "latex" not in args.to:
             raise ModelError("--with-simulation adds a section to the LaTeX report: add --to latex")
         from ..analysis.simulation.latex_section import simulation_for_report
 
-        sections, figures = simulation_for_report(design, args.out, args.name or design.model.name)
-    for path in [*emit(design, args.to, args.out, name=args.name, precision=args.precision,
+        sections, figures = simulation_for_report(design, folder, args.name or design.model.name)
+    for path in [*emit(design, args.to, folder, name=args.name, precision=args.precision,
                        latex_sections=sections), *figures]:
         print(path)
     return 0

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from pathlib import Path
 from contextlib import contextmanager
 
 from ..errors import ModelError
@@ -15,10 +16,15 @@ MAX_ROBUST_POINTS = 100_000  # eigenvalue cross-check points of robust
 MAX_MISMATCH = 6  # mismatched parameters of robust (the closed-form conditions grow fast)
 
 
-def _common(p, model_help="model file (TOML)"):
-    p.add_argument("model", help=model_help)
-    p.add_argument("-o", "--output", metavar="DIR", default=None,
+def output_option(p) -> None:
+    """The one output-folder option of every command that writes files (``--out`` is an alias)."""
+    p.add_argument("-o", "--output", "--out", dest="output", metavar="DIR", default=None,
                    help="output folder (default ./symgain-out/<model name>)")
+
+
+def _common(p, model_help="model file (TOML)", nargs=None):
+    p.add_argument("model", help=model_help, nargs=nargs)
+    output_option(p)
     p.add_argument("--quiet", action="store_true", help="no progress bar and only the essential lines")
 
 
@@ -41,9 +47,11 @@ def add_to(sub) -> None:
                        "derive the Routh-Hurwitz conditions in closed form, report the stable range of the "
                        "ratio true/estimate, cross-check with eigenvalues and plot the pole migration. "
                        "Exit code 1 when an eigenvalue check disagrees with the conditions.",
-                       epilog="example:\n  symgain robust symgain/data/demo_conveyor.toml --mismatch m tau")
-    _common(p)
-    p.add_argument("--mismatch", nargs="+", metavar="NAME", required=True,
+                       epilog="examples:\n  symgain demo --write-model conveyor.toml\n"
+                       "  symgain robust conveyor.toml --mismatch m tau\n"
+                       "  symgain robust --mismatch m tau conveyor.toml")
+    _common(p, nargs="?")
+    p.add_argument("--mismatch", nargs="+", action="extend", metavar="NAME", required=True,
                    help="plant parameters whose true value differs from the one the controller assumes")
     p.add_argument("--points", type=whole_number(1, MAX_ROBUST_POINTS), default=300, metavar="N",
                    help=f"sampled points for the eigenvalue cross-check (default 300, at most {MAX_ROBUST_POINTS})")
@@ -64,7 +72,8 @@ def add_to(sub) -> None:
     p = sub.add_parser("plot", help="draw closed-loop figures (step responses)", formatter_class=_FMT,
                        description="Draw the closed-loop step response at nominal values and at the corners "
                        "of the plant parameters' ranges (scipy.signal), one PNG.",
-                       epilog="example:\n  symgain plot symgain/data/demo_conveyor.toml --step")
+                       epilog="examples:\n  symgain demo --write-model conveyor.toml\n"
+                       "  symgain plot conveyor.toml --step")
     _common(p)
     p.add_argument("--step", action="store_true", help="step responses at nominal and at the corners")
     p.add_argument("--gains", choices=("fixed", "scheduled"), default="fixed",
@@ -107,7 +116,9 @@ def run_schedule(args) -> int:
     axes = [parse_axis(text, model) for text in args.over]
     if len(axes) > 2:
         raise ModelError(f"--over is given {len(axes)} times; a schedule runs over one or two parameters")
-    design = derive_and_warn(model)
+    design, note = _designed_from(model)
+    if note:
+        print(f"note: {note}")
     evaluator = GainEvaluator(design)
     folder = _folder(args, model)
     total = int(np.prod([a.values.size for a in axes]))
@@ -135,33 +146,66 @@ def run_schedule(args) -> int:
     return 0
 
 
-def _interval_text(lo: float, hi: float) -> str:
+def _interval_text(lo: float, hi: float, var: str) -> str:
     import numpy as np
 
-    return f"({lo:.6g}, {'inf' if not np.isfinite(hi) else f'{hi:.6g}'})"
+    from ..mathtext import number_text
+
+    if not np.isfinite(hi):
+        return f"{var} > {number_text(lo)}" if lo > 0 else f"every {var} > 0"
+    return f"{number_text(lo)} < {var} < {number_text(hi)}"
+
+
+def _mismatch_names(args) -> list[str]:
+    """--mismatch NAME... MODEL also works: a last name that is a file is the model."""
+    names = [n for item in args.mismatch for n in item.split(",") if n]
+    if args.model is None:
+        if names and (names[-1].endswith(".toml") or Path(names[-1]).is_file()):
+            args.model = names.pop()
+        else:
+            raise ModelError("give the model file: symgain robust MODEL --mismatch NAME [NAME ...]")
+    if not names:
+        raise ModelError("name at least one parameter after --mismatch")
+    names = list(dict.fromkeys(names))
+    if len(names) > MAX_MISMATCH:
+        raise ModelError(f"--mismatch names {len(names)} parameters; at most {MAX_MISMATCH} are analysed "
+                         "at once")
+    return names
+
+
+def _designed_from(model):
+    """The design (free gains settled, warnings printed) and the sentence about free gains."""
+    from . import derive_and_warn
+    from ..analysis.loops import settle_free_gains
+
+    return settle_free_gains(derive_and_warn(model))
+
+
+def _designed(args):
+    """Model, design (free gains settled) and the sentence about free gains."""
+    from ..model.toml_file import load_model
+
+    model = load_model(args.model)
+    design, note = _designed_from(model)
+    return model, design, note
 
 
 def run_robust(args) -> int:
     import numpy as np
     import sympy as sp
 
-    from . import derive_and_warn
-    from ..model.toml_file import load_model
-    from ..emit.plots import png_bytes, pole_migration_figure
-    from ..analysis.robust import ClosedLoop, analyze_mismatch, cross_check, pole_migration, ratio_ranges
+    from ..analysis.robust import (ClosedLoop, analyze_mismatch, cross_check, grid_size, pole_migration,
+                                   ratio_ranges)
     from ..emit.files import write_atomic
+    from ..emit.plots import png_bytes, pole_migration_figure
+    from ..mathtext import condition_text, set_text
 
-    model = load_model(args.model)
-    design = derive_and_warn(model)
-    mismatch = list(dict.fromkeys(args.mismatch))
-    if len(mismatch) > MAX_MISMATCH:
-        raise ModelError(f"--mismatch names {len(mismatch)} parameters; at most {MAX_MISMATCH} are analysed "
-                         "at once")
-    analysis = analyze_mismatch(design, mismatch)
+    names = _mismatch_names(args)
+    model, design, note = _designed(args)
+    analysis = analyze_mismatch(design, names)
     folder = _folder(args, model)
-    from ..analysis.robust import grid_size
-
-    total = sum(grid_size(model, n) for n in analysis.mismatched)
+    closed_form = analysis.conditions is not None
+    total = sum(grid_size(model, n, closed_form) for n in analysis.mismatched)
     with _progress(total, "grid scan", args.quiet) as tick:
         ranges = ratio_ranges(analysis, progress=tick)
     with _progress(args.points, "eigenvalue check", args.quiet) as tick:
@@ -177,93 +221,113 @@ def run_robust(args) -> int:
     ratio_words = ", ".join(f"{analysis.ratios[n]} = {n}/{analysis.hats[n]}" for n in analysis.mismatched)
     print(f"{model.name}: controller designed with {', '.join(map(str, analysis.hats.values()))}; "
           f"the plant has the true values ({ratio_words})")
-    if not args.quiet:
-        print(f"closed-loop characteristic polynomial (scaled by a positive factor):\n  "
-              f"{sp.sstr(sp.collect(analysis.closed_loop_polynomial, sp.Symbol('s')))}")
-        print("Routh-Hurwitz conditions, each > 0 (conditions the signs already guarantee are left out):")
-        for cond in analysis.conditions or ["(none: stable for every positive ratio)"]:
-            print(f"  {sp.sstr(cond)}")
+    print(f"loop analysed: {analysis.loop}")
+    if note:
+        print(f"note: {note}")
+    if not closed_form:
+        print("method: eigenvalues of the loop over ratios 0.001..1000 (no closed form: the loop is larger "
+              "than 4 states, too long or not rational in the ratio)")
+    elif not args.quiet:
+        from ..emit.terminal import format_polynomial, terminal_width
+
+        poly = format_polynomial(analysis.closed_loop_polynomial)
+        shown = poly if len(poly) <= terminal_width() - 2 else \
+            f"degree {sp.degree(analysis.closed_loop_polynomial, sp.Symbol('s'))} in s (too long to show)"
+        print(f"closed-loop characteristic polynomial (scaled by a positive factor):\n  {shown}")
+        print("Routh-Hurwitz conditions (conditions the signs already guarantee are left out):")
+        for cond in analysis.conditions or []:
+            text = condition_text(cond > 0)
+            print(f"  {text if len(text) <= terminal_width() - 2 else 'a polynomial condition of ' + str(len(sp.Add.make_args(cond))) + ' terms > 0'}")
+        if not analysis.conditions:
+            print("  none: stable for every positive ratio")
     for name, rr in ranges.items():
         unit = model.parameter(name).unit
-        print(f"{name} (controller assumes {nominal[name]:g} {unit}; other values at nominal):")
+        ratio = str(analysis.ratios[name])
+        print(f"{name} (controller assumes {nominal[name]:g} {unit}; other values at nominal):".replace(" ;", ";"))
         if rr.exact is not None:
-            print(f"  stable ratio {name}/{name}_hat, exact: {sp.sstr(rr.exact)}")
-        print("  stable ratio, numerically: " + (" U ".join(_interval_text(*i) for i in rr.intervals) or "none"))
+            print(f"  stable ratio {ratio} = {name}/{name}_hat, exact: {set_text(rr.exact, ratio)}")
+        print("  stable ratio, numerically: " + (" or ".join(_interval_text(*i, ratio) for i in rr.intervals)
+                                                 or "none"))
         if rr.declared is not None:
             verdict = "stable throughout" if rr.declared_stable else "NOT stable throughout"
-            print(f"  true {name} over its declared range gives ratio {_interval_text(*rr.declared)[1:-1]}:"
-                  f" {verdict}")
+            lo, hi = rr.declared
+            print(f"  true {name} over its declared range gives {lo:.6g} <= {ratio} <= {hi:.6g}: {verdict}")
         if rr.over_ranges is not None:
-            print(f"  stable ratio at every one of {rr.grid_points} grid points over the declared ranges "
-                  f"(estimate {name}_hat included): {_interval_text(*rr.over_ranges)}")
+            print(f"  stable at every one of {rr.grid_points} grid points over the declared ranges "
+                  f"(estimate {name}_hat included): {_interval_text(*rr.over_ranges, ratio)}")
         else:
             print(f"  some of the {rr.grid_points} grid points over the declared ranges are unstable even "
                   "with a matched controller")
-    print(f"eigenvalue cross-check at {counts['points']} sampled points (ratios 0.05..20): "
-          f"{counts['agree']} agree, {counts['disagree']} disagree, {counts['marginal']} on the boundary")
+    if closed_form:
+        print(f"eigenvalue cross-check at {counts['points']} sampled points (ratios 0.05..20): "
+              f"{counts['agree']} agree, {counts['disagree']} disagree, {counts['marginal']} on the boundary")
     if path:
         print(f"wrote {path}")
     return 1 if counts["disagree"] else 0
 
 
 def run_sensitivity(args) -> int:
-    import numpy as np
     import sympy as sp
 
-    from . import derive_and_warn
-    from ..model.toml_file import load_model
+    from ..design import EXTRA_SYMBOLS
+    from ..mathtext import math_text
     from ..analysis.sensitivity import relative_sensitivities, sensitivity_table
     from ..analysis.evaluate import gain_entries
 
-    model = load_model(args.model)
-    design = derive_and_warn(model)
-    free = [str(g) for part in design.parts() for g in part.free_gains]
-    if free:  # a family of gains: numbers need every gain fixed (as schedules do)
-        from ..errors import DesignError, Where
-
-        raise DesignError("gains still contain free symbols " + ", ".join(free) + "; fix them in the pattern "
-                          "before a sensitivity table", where=Where(model.source))
+    model, design, note = _designed(args)
     table, added = sensitivity_table(design, with_definitions=True)
     rel = relative_sensitivities(design, table=table)
     names = [p.name for p in model.parameters]
     print(f"{model.name}: relative sensitivity (p/K) dK/dp at nominal "
           + ", ".join(f"{k} = {v:g}" for k, v in model.nominal_values().items()))
-    entries = [e for e in gain_entries(design) if e.symbol == getattr(design, e.part).symbol]
+    print("parts covered: " + "; ".join(f"{p.part} ({', '.join(_symbols_of(p))})" for p in design.parts()))
+    if note:
+        print(f"note: {note}")
+    entries = gain_entries(design)
+    keys = {e.label: (e.part if e.symbol == getattr(design, e.part).symbol else
+                      {v: k for k, v in EXTRA_SYMBOLS.items()}.get(e.symbol, e.symbol)) for e in entries}
     header = ["gain", *names]
-    rows = [[e.label] + [f"{rel[e.part][(e.row, e.col, n)]:+.3f}" for n in names] for e in entries]
+    rows = [[e.label] + [f"{rel[keys[e.label]][(e.row, e.col, n)]:+.3f}" for n in names] for e in entries]
     widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
     for r in [header, *rows]:
         print("  " + "  ".join(c.rjust(w) if i else c.ljust(w) for i, (c, w) in enumerate(zip(r, widths))))
     print("(+1.000: the gain grows in proportion to the parameter; nan: the gain is zero there)")
     if args.formulas:
+        from ..emit.terminal import terminal_width
+
         print("partial derivatives in closed form:")
         for part in design.parts():
             if part.definitions:
                 print(f"  {part.part} gain in compact form; definitions, evaluated in order:")
-                for sym, expr in (*part.definitions, *added[part.part]):
-                    print(f"    {sp.sstr(sym)} = {sp.sstr(expr)}")
+                for sym, expr in (*part.definitions, *added.get(part.part, ())):
+                    print(f"    {math_text(sym)} = {math_text(expr)}")
         for e in entries:
             for n in names:
-                d = table[e.part][(e.row, e.col, n)]
+                d = table[keys[e.label]][(e.row, e.col, n)]
                 if d != 0:
-                    print(f"  d {e.label} / d {n} = {sp.sstr(d)}")
+                    line = f"  d {e.label} / d {n} = {math_text(d)}"
+                    print(line if len(line) <= terminal_width() else
+                          f"  d {e.label} / d {n} = a formula of {sp.count_ops(d)} operations (whole: --json)")
     return 0
 
 
-def run_plot(args) -> int:
-    import numpy as np
+def _symbols_of(part) -> list[str]:
     import sympy as sp
 
-    from . import derive_and_warn
-    from ..model.toml_file import load_model
+    from ..design import EXTRA_SYMBOLS
+
+    return [part.symbol] + [EXTRA_SYMBOLS.get(k, k) for k, v in part.extra.items()
+                            if k != "gain_symbols" and isinstance(v, sp.MatrixBase)]
+
+
+def run_plot(args) -> int:
     from ..emit.plots import png_bytes, step_figure
     from ..emit.files import write_atomic
-    from ..analysis.step_response import corner_points, step_responses
+    from ..analysis.step_response import corner_points, loop_description, step_responses
 
     if not args.step:
         raise ModelError("choose a figure to draw: --step")
-    model = load_model(args.model)
-    design = derive_and_warn(model)
+    model, design, note = _designed(args)
     folder = _folder(args, model)
     with _progress(len(corner_points(design)), "step responses", args.quiet) as tick:
         runs = step_responses(design, gains=args.gains, progress=tick)
@@ -271,6 +335,9 @@ def run_plot(args) -> int:
     path = write_atomic(folder / f"{model.name}-step.png", png_bytes(step_figure(model, runs, output, args.gains)))
     unstable = [r.label for r in runs if not r.stable]
     listed = "; ".join(unstable[:3]) + ("; ..." if len(unstable) > 3 else "")
+    print(f"loop drawn: {loop_description(design)}; step of the reference of {output}")
+    if note:
+        print(f"note: {note}")
     print(f"{len(runs)} step responses (nominal and {len(runs) - 1} corners), "
           f"{len(unstable)} unstable" + (f": {listed}" if unstable else ""))
     print(f"wrote {path}")

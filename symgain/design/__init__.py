@@ -15,6 +15,7 @@
 | ``canonical_form`` | the multi-input controllable canonical form (Luenberger) and its unique gain |
 | ``target_split`` | one target polynomial shared out over blocks or chains |
 | ``estimator``, ``integral_action``, ``feedforward`` | the parts, as uses of the placement entry |
+| ``diagnostics`` | warnings: conditions that can fail in the ranges, name clashes, ill-conditioned gains |
 | ``derive`` | ``derive(model)``: every part the model asks for |
 
 Imports flow one way: result <- single_input <- several_inputs <- parts <- derive.
@@ -23,8 +24,8 @@ Imports flow one way: result <- single_input <- several_inputs <- parts <- deriv
 >>> callable(derive) and Design.__name__
 'Design'
 """
-from .result import GAIN_AXES, Branch, Design, GainDesign, Step, gain_labels
+from .result import EXTRA_SYMBOLS, GAIN_AXES, Branch, Design, GainDesign, Step, gain_labels
 from .single_input import design_gain
 from .derive import derive
 
-__all__ = ["GAIN_AXES", "Branch", "Design", "GainDesign", "Step", "gain_labels", "design_gain", "derive"]
+__all__ = ["EXTRA_SYMBOLS", "GAIN_AXES", "Branch", "Design", "GainDesign", "Step", "gain_labels", "design_gain", "derive"]

@@ -31,7 +31,7 @@ from .estimator import design_estimator
 from .feedforward import design_feedforward
 from .integral_action import design_integral
 from .result import Design
-from .several_inputs import design_several_inputs
+from .several_inputs import design_several_inputs, parameter_box
 from .single_input import design_gain
 from .targets import target_warnings
 
@@ -54,7 +54,7 @@ def derive(model: Model, form: str = "auto") -> Design:
 
         design = derive_sampled(model)
         _refuse_infinite(design)
-        return design
+        return _with_warnings(design, tuple(design.warnings))
     avoid = set(model.symbols)
     nominal = {p.symbol: p.nominal for p in model.parameters if p.nominal is not None}
     feedback = estimator = integral = feedforward = None
@@ -69,7 +69,7 @@ def derive(model: Model, form: str = "auto") -> Design:
         else:
             feedback = design_several_inputs(model.A, model.B, spec, part="feedback", symbol="K",
                                              states=model.states, inputs=model.inputs, avoid=avoid,
-                                             symbols=model.symbols)
+                                             symbols=model.symbols, ranges=parameter_box(model))
     if feedback is not None:  # names of a compact form stay distinct across parts
         avoid |= {str(sym) for sym, _ in feedback.definitions}
     if model.estimator is not None:
@@ -86,7 +86,16 @@ def derive(model: Model, form: str = "auto") -> Design:
     design = Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
                     feedforward=feedforward)
     _refuse_infinite(design)
-    return replace(design, warnings=tuple(target_warnings(design)))
+    return _with_warnings(design, tuple(target_warnings(design)))
+
+
+def _with_warnings(design: Design, first: tuple) -> Design:
+    """The design with every warning it earns: the target's, then the diagnostics'."""
+    from .diagnostics import design_warnings
+
+    stage("derive: warnings")
+    extra = tuple(w for w in design_warnings(design) if w not in first)
+    return replace(design, warnings=first + extra)
 
 
 def _refuse_infinite(design: Design) -> None:

@@ -32,7 +32,7 @@ import sympy as sp
 from ..errors import DesignError
 from ..model import S, Model
 from .result import Step
-from .several_inputs import design_several_inputs
+from .several_inputs import design_several_inputs, parameter_box
 from .single_input import design_gain
 
 __all__ = ["design_estimator", "separation_polynomial", "SEPARATION_NOTE"]
@@ -57,7 +57,7 @@ def design_estimator(model: Model, avoid: set[str], feedback=None, form: str = "
                            word="observable")
     else:
         dual = design_several_inputs(A.T, C.T, spec, part="estimator", symbol="L", states=model.states,
-                                     inputs=model.outputs, avoid=avoid, symbols=model.symbols,
+                                     inputs=model.outputs, avoid=avoid, symbols=model.symbols, ranges=parameter_box(model),
                                      word="observable", pattern_shape=((n, "states"), (p, "outputs")),
                                      transpose_pattern=True)
     Lsym = sp.Matrix(dual.extra["gain_symbols"]).T

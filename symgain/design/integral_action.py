@@ -31,7 +31,7 @@ from ..errors import DesignError
 from ..model import Model
 from .validity import nonzero_conditions
 from .result import Step
-from .several_inputs import design_several_inputs
+from .several_inputs import design_several_inputs, parameter_box
 from .single_input import design_gain
 
 __all__ = ["augmented_plant", "design_integral", "zero_at_origin_matrix"]
@@ -104,7 +104,7 @@ def design_integral(model: Model, avoid: set[str], form: str = "auto", nominal: 
         full = design_gain(Aa, Ba, spec, part="integral", symbol="K", states=states, avoid=avoid, form=form, nominal=nominal)
     else:
         full = design_several_inputs(Aa, Ba, spec, part="integral", symbol="K", states=states,
-                                     inputs=model.inputs, avoid=avoid, symbols=model.symbols,
+                                     inputs=model.inputs, avoid=avoid, symbols=model.symbols, ranges=parameter_box(model),
                                      pattern_shape=((m, "inputs"), (n + p, "augmented states")))
     gain = sp.Matrix(full.gain)
     K, Ki = gain[:, :n], gain[:, n:]

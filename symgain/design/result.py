@@ -99,6 +99,8 @@ class Design:
         return design_markdown(self)
 
 
+EXTRA_SYMBOLS = {"integral_gain": "Ki"}  # the trade's name of each extra matrix of a part
+
 GAIN_AXES = {  # which model names label the rows and columns of each gain matrix
     "feedback": ("inputs", "states"),
     "estimator": ("states", "outputs"),

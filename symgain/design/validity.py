@@ -15,6 +15,8 @@ from typing import Iterable
 
 import sympy as sp
 
+from ..mathtext import condition_text
+
 __all__ = ["nonzero_conditions", "provably_nonzero", "holds_at"]
 
 
@@ -60,8 +62,8 @@ def holds_at(conditions: Iterable[sp.Basic], values: dict[sp.Symbol, float], tol
             terms = [abs(complex(t.xreplace(values).evalf())) for t in sp.Add.make_args(sp.expand(f))]
             val = abs(complex(f.xreplace(values).evalf()))
             if val <= tol * max([1.0, *terms]):
-                failed.append(str(cond))
+                failed.append(condition_text(cond))
         else:
             if not bool(cond.xreplace(values)):
-                failed.append(str(cond))
+                failed.append(condition_text(cond))
     return failed

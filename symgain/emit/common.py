@@ -30,7 +30,7 @@ from dataclasses import dataclass
 
 import sympy as sp
 
-from ..design import Design
+from ..design import EXTRA_SYMBOLS, Design
 from ..model.identifiers import PYTHON_KEYWORDS
 
 __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
@@ -101,12 +101,13 @@ def design_functions(design: Design) -> list[Function]:
     out: list[Function] = []
     taken: set[str] = set()
     for part in design.parts():
-        matrices = [("gain", f"{part.part}_gain", part.symbol, part.gain)]
+        main = "integral_state_gain" if part.part == "integral" else f"{part.part}_gain"  # K of [K, Ki]
+        matrices = [("gain", main, part.symbol, part.gain)]
         for key, value in part.extra.items():
             if key == "gain_symbols" or not isinstance(value, sp.MatrixBase):
                 continue
-            name = key if key not in taken and key != f"{part.part}_gain" else f"{part.part}_{key}"
-            matrices.append((key, name, key, value))
+            name = key if key not in taken and key != main else f"{part.part}_{key}"
+            matrices.append((key, name, EXTRA_SYMBOLS.get(key, key), value))
         defined = {sym for sym, _ in part.definitions}
         in_definitions = {s for _, e in part.definitions for s in e.free_symbols}
         shown = part.selected_branch or (1 if part.branches else None)
@@ -116,12 +117,12 @@ def design_functions(design: Design) -> list[Function]:
             for b in part.branches:
                 if b.index == shown:
                     continue
-                entries.append(("gain", f"{part.part}_gain_branch_{b.index}", part.symbol, b.gain,
+                entries.append(("gain", f"{main}_branch_{b.index}", part.symbol, b.gain,
                                 b.valid_when, b.index, ()))
                 for key, value in b.extra.items():
                     name = f"{key}_branch_{b.index}"
-                    entries.append((key, name if name not in taken else f"{part.part}_{name}", key, value,
-                                    b.valid_when, b.index, ()))
+                    entries.append((key, name if name not in taken else f"{part.part}_{name}",
+                                    EXTRA_SYMBOLS.get(key, key), value, b.valid_when, b.index, ()))
         for key, name, label, matrix, valid, branch, definitions in entries:
             conditions, nonnegative = _split_conditions(valid)
             taken.add(name)

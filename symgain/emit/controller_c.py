@@ -64,9 +64,9 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     P = prefix
     t = ctype
     fabs = "fabsf" if t == "float" else "fabs"
-    mats = [("K", m, n, "integral_gain" if has_I else "feedback_gain")]
+    mats = [("K", m, n, "integral_state_gain" if has_I else "feedback_gain")]
     if has_I:
-        mats.append(("Ki", m, p, "integral_integral_gain"))
+        mats.append(("Ki", m, p, "integral_gain"))
     if has_L:
         mats.append(("L", n, p, "estimator_gain"))
     if has_N:

@@ -233,9 +233,9 @@ def controller_class(design: Design, printer, names: dict[str, str]) -> list[str
     kw, pname, fixed = _sample_period(design, names)
     discrete = design.sampled is not None
     K_part = design.integral if design.integral is not None else design.feedback
-    K_fn = "integral_gain" if design.integral is not None else "feedback_gain"
+    K_fn = "integral_state_gain" if design.integral is not None else "feedback_gain"
     matrices = {
-        "K": K_fn, "Ki": "integral_integral_gain" if design.integral is not None else None,
+        "K": K_fn, "Ki": "integral_gain" if design.integral is not None else None,
         "L": "estimator_gain" if design.estimator is not None else None,
         "N": "feedforward_gain" if design.feedforward is not None else None,
         "A": "plant_Phi" if discrete else "plant_A", "B": "plant_Gamma" if discrete else "plant_B",

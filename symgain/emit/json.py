@@ -100,8 +100,7 @@ def design_to_dict(design: Design, sensitivity: bool | None = None) -> dict:
                           "Phi": _matrix(sampled.Phi), "Gamma": _matrix(sampled.Gamma),
                           "valid_when": [sp.sstr(c) for c in sampled.valid_when], "notes": list(sampled.notes),
                           "estimator_form": model.sampling.estimator_form}
-    if design.warnings:
-        out["warnings"] = list(design.warnings)
+    out["warnings"] = list(design.warnings)
     wanted = [p for p in design.parts() if sensitivity or (sensitivity is None and not p.definitions)]
     matrices, added = _sensitivities(design, wanted) if wanted else ({}, {})
     for part in design.parts():

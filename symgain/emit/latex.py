@@ -34,7 +34,7 @@ from ..analysis.check import check_design
 from ..design import GAIN_AXES, Design, GainDesign, Step
 from ..analysis.sensitivity import sensitivity_table, small_expression
 from ..model import Z
-from .latex_layout import equation_lines, formula_lines, matrix_tex, tex, text
+from .latex_layout import equation_lines, formula_lines, matrix_tex, prose, sentence, tex, text, unit_tex
 
 __all__ = ["latex_report", "CAUTION"]
 
@@ -106,7 +106,7 @@ def _parameter_table(design: Design) -> list[str]:
         rng = f"[{p.range[0]:g}, {p.range[1]:g}]" if p.range else "none"
         nominal = f" ({p.nominal:g})" if p.nominal is not None else ""
         role = " (design knob)" if p.role == "design" else ""
-        out.append(f"${tex(p.symbol)}$ & {text(p.meaning) or '--'}{role} & {text(p.unit) or '--'} & "
+        out.append(f"${tex(p.symbol)}$ & {text(p.meaning) or '--'}{role} & {unit_tex(p.unit) or '--'} & "
                    f"{_SIGN.get(p.sign, text(p.sign))} & {rng}{nominal} \\\\")
     return out + [r"\hline", r"\end{tabular}", r"\end{center}"]
 
@@ -128,8 +128,12 @@ def _plant(design: Design) -> list[str]:
     else:
         for name, mat in mats:
             out += _matrix_block(name, mat, f"plant.{name}")
+    equilibrium = model.extra.get("equilibrium") or {}
     for note in model.notes:
-        out.append(text(note))
+        if equilibrium and note.lower().startswith("linearized at the equilibrium"):
+            out += _equilibrium(equilibrium)
+            continue
+        out.append(sentence(note))
     return out + _sampled(design)
 
 
@@ -141,7 +145,7 @@ def _sampled(design: Design) -> list[str]:
     out = [r"\subsection{Sampled plant}",
            f"The controller runs at the sample period $T = {tex(sampled.period)}$ s; the plant seen at the "
            r"sampling instants is $x[k+1] = \Phi x[k] + \Gamma u[k]$ (" + text(sampled.method) + ")."]
-    out += [text(note) + "." for note in sampled.notes]
+    out += [sentence(note) for note in sampled.notes]
     for name, mat in ((r"\Phi", sampled.Phi), (r"\Gamma", sampled.Gamma)):
         out += _matrix_block(name, mat, f"sampled.{name.strip(chr(92))}")
     if sampled.valid_when:
@@ -151,12 +155,20 @@ def _sampled(design: Design) -> list[str]:
     return out
 
 
+def _equilibrium(equilibrium: dict) -> list[str]:
+    """The operating point as mathematics, a few entries per line so that it keeps within the margins."""
+    entries = [f"{{{tex(sp.Symbol(str(k)))}}}_{{0}} = {tex(v)}" for k, v in equilibrium.items()]
+    lines = [r",\quad ".join(entries[k:k + 4]) for k in range(0, len(entries), 4)]
+    return (["Linearized at the equilibrium"] + [r"\begin{gather*}", " \\\\\n".join(lines), r"\end{gather*}"]
+            + ["States, inputs and outputs are deviations from it."])
+
+
 def _target(part: GainDesign) -> list[str]:
     if part.target is None:
         return []
     out = [r"\subsection{Target}", f"Target: {text(part.target.description)}."]
     for note in part.notes:
-        out.append(text(note) + ".")
+        out.append(sentence(note))
     if part.target.poles:
         var = "z" if _in_z(part) else "s"
         rows = [(f"{part.part}.target_poles[{k}]", [f"{var}_{{{k + 1}}} &= {tex(p)}"])
@@ -181,13 +193,19 @@ def _step(part: GainDesign, step: Step) -> list[str]:
     key = f"{part.part}.{step.name}"
     var = "z" if _in_z(part) else "s"
     title = step.title if step.title.startswith("det") else step.title[:1].upper() + step.title[1:]
-    out = [r"\subsection{" + text(title) + "}"]
+    out = [r"\subsection{" + prose(title) + "}"]
     value = step.value
     if step.name == "solution" and isinstance(value, sp.MatrixBase):
         names = _gain_names(part, value)
+        symbols = part.extra.get("gain_symbols")
+        fixed = [] if not isinstance(symbols, sp.MatrixBase) or symbols.shape != value.shape else \
+            [(i, j) for i in range(value.rows) for j in range(value.cols)
+             if not isinstance(symbols[i, j], sp.Symbol) or symbols[i, j] == value[i, j]]
         rows = [(f"{key}[{i}][{j}]", formula_lines(names[i][j], value[i, j]))
-                for i in range(value.rows) for j in range(value.cols)]
-        return out + _display(rows)
+                for i in range(value.rows) for j in range(value.cols) if (i, j) not in fixed]
+        if fixed:
+            out.append("Entries fixed by the pattern or left free are not repeated here.")
+        return out + (_display(rows) if rows else [])
     if isinstance(value, sp.MatrixBase):
         default = part.symbol if step.name == "direction_gain" else r"\mathrm{value}"
         return out + _matrix_block(_LHS.get(step.name, default), value, key)
@@ -196,6 +214,8 @@ def _step(part: GainDesign, step: Step) -> list[str]:
             return out + ["None: the declared signs of the parameters rule out every singular case."]
         rows = []
         for k, item in enumerate(value):
+            if isinstance(item, sp.Eq) and sp.simplify(item.lhs - item.rhs) == 0:
+                continue  # 0 = 0: a power of s the pattern leaves unconstrained
             if isinstance(item, sp.Eq):
                 label = f"{var}^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""
                 rows.append((f"{key}[{k}]", equation_lines(item.lhs, item.rhs, label)))
@@ -231,8 +251,11 @@ def _extras(part: GainDesign) -> list[str]:
     for name, value in part.extra.items():
         if name == "gain_symbols" or not isinstance(value, sp.MatrixBase):
             continue
-        out += [r"\subsection{" + text(name.replace("_", " ").capitalize()) + "}"]
-        out += _matrix_block(r"\mathrm{" + name.replace("_", r"\_") + "}", value, f"{part.part}.extra.{name}")
+        symbol = {"integral_gain": "K_{i}"}.get(name)
+        heading = f"Integral gain ${symbol}$" if symbol else text(name.replace("_", " ").capitalize())
+        out += [r"\subsection{" + heading + "}"]
+        out += _matrix_block(symbol or r"\mathrm{" + name.replace("_", r"\_") + "}", value,
+                             f"{part.part}.extra.{name}")
     return out
 
 
@@ -341,6 +364,9 @@ def latex_report(design: Design, n_points: int = 10, seed: int = 0, extra_sectio
            "where they hold, and checks them numerically. Symbols in formulas are the parameters "
            "of the table in Section 1; $k_i$ and similar are the unknown gains before the solution."]
     out += _plant(design)
+    if design.warnings:
+        out += [r"\section{Warnings}", r"\begin{itemize}"]
+        out += [r"\item " + sentence(w) for w in design.warnings] + [r"\end{itemize}"]
     expanded = [p for p in design.parts() if not p.definitions]
     sensitivity = sensitivity_table(replace(design, **{p.part: None for p in design.parts() if p.definitions}))\
         if expanded else {}

@@ -173,3 +173,87 @@ def text(value) -> str:
     from .escape import latex_text
 
     return latex_text(value)
+
+
+_FORMULAS = [  # formulas inside step titles and notes, set as mathematics
+    (r"det\(sI - A \+ L C\) = det\(sI - A\^T \+ C\^T L\^T\)",
+     r"$\\det(sI - A + LC) = \\det(sI - A^{T} + C^{T} L^{T})$"),
+    (r"det\(sI - A \+ B K\) det\(sI - A \+ L C\)", r"$\\det(sI - A + BK)\\,\\det(sI - A + LC)$"),
+    (r"det\(sI - A \+ B (\w+)\)", r"$\\det(sI - A + B\1)$"),
+    (r"det\(sI - A\)", r"$\\det(sI - A)$"),
+    (r"det \[\[A, B\], \[C, D\]\]", r"$\\det\\begin{bmatrix} A \& B \\\\ C \& D \\end{bmatrix}$"),
+    (r"A_a = \[\[A, 0\], \[C, 0\]\], B_a = \[\[B\], \[D\]\]",
+     r"$A_{a} = \\begin{bmatrix} A \& 0 \\\\ C \& 0 \\end{bmatrix}$, $B_{a} = \\begin{bmatrix} B \\\\ D \\end{bmatrix}$"),
+    (r"\[C; C A; \.\.\.\]", r"$[C;\\ CA;\\ \\dots]$"),
+    (r"A - B (\w+)", r"$A - B\1$"),
+    (r"A - L C", r"$A - LC$"),
+    (r"\[K, Ki\]", r"$[K,\\ K_{i}]$"),
+    (r"u = -K x - Ki q", r"$u = -Kx - K_{i} q$"),
+    (r"q' = y - r", r"$\\dot q = y - r$"),
+    (r"u = -K x_hat", r"$u = -K\\hat x$"),
+    (r"u = -K x", r"$u = -Kx$"),
+    (r"(\w) = f k\b", r"$\1 = f k$"),
+    (r"k\^T f\^T", r"$k^{T} f^{T}$"),
+    (r"\|s\| = (\w+)", r"$|s| = \1$"),
+    (r"\(s \+ (\w+)\)\^n", r"$(s + \1)^{n}$"),
+    (r"e = x - x_hat", r"$e = x - \\hat x$"),
+    (r"\bgain (K|L|N)\b", r"gain $\1$"),
+    (r"\b([A-Za-z])_(\d+)\b", r"$\1_{\2}$"),
+    (r"\bat (-\w+)", r"at $\1$"),
+]
+
+
+def prose(value: str) -> str:
+    r"""Text with the formulas it quotes set as mathematics, the rest made safe for LaTeX.
+
+    >>> prose("closed-loop matrix A - B K")
+    'closed-loop matrix $A - BK$'
+    >>> prose("poles on |s| = w")
+    'poles on $|s| = w$'
+    """
+    import re as _re
+
+    pieces, rest = [], str(value)
+    pattern = _re.compile("|".join(f"(?:{p})" for p, _ in _FORMULAS))
+    pos = 0
+    for match in pattern.finditer(rest):
+        pieces.append(text(rest[pos:match.start()]))
+        found = match.group(0)
+        for p, repl in _FORMULAS:
+            if _re.fullmatch(p, found):
+                pieces.append(_re.sub(p, repl, found))
+                break
+        pos = match.end()
+    pieces.append(text(rest[pos:]))
+    return "".join(pieces)
+
+
+def sentence(value: str) -> str:
+    """A note as a sentence: capital first letter, a full stop at the end, formulas as mathematics.
+
+    >>> sentence("extra poles at 5 times the dominant real part (rule of thumb)")
+    'Extra poles at 5 times the dominant real part (rule of thumb).'
+    """
+    value = str(value).strip()
+    if not value:
+        return ""
+    value = value[:1].upper() + value[1:]
+    return prose(value if value.endswith((".", "!", "?")) else value + ".")
+
+
+def unit_tex(unit: str) -> str:
+    r"""A unit as upright mathematics: ``N*s/m`` -> ``$\mathrm{N\,s/m}$``, ``m/s^2`` with a superscript.
+
+    >>> unit_tex("kg*m^2")
+    '$\\mathrm{kg\\,m^{2}}$'
+    >>> unit_tex("")
+    ''
+    """
+    import re as _re
+
+    if not unit:
+        return ""
+    parts = _re.split(r"\^\{?\(?(-?[0-9.]+)\)?\}?", unit.strip())
+    body = "".join(text(piece).replace("*", r"\,").replace(" ", r"\,") if k % 2 == 0 else f"^{{{piece}}}"
+                   for k, piece in enumerate(parts))
+    return r"$\mathrm{" + body + "}$"

@@ -38,6 +38,7 @@ from typing import Any, Mapping
 import sympy as sp
 
 from ..errors import ModelError, Where
+from ..mathtext import math_text
 from .expressions import parse_expression
 
 __all__ = ["Linearization", "linearize_plant", "SOLVE"]
@@ -142,7 +143,7 @@ def linearize_plant(plant: Mapping[str, Any], symbols: Mapping[str, sp.Symbol], 
                              f"(right-hand sides there: {_show_residuals(states, f, shown)})", where=qw)
         solutions = [s for s in solutions if all(u in s for u in unknowns)]
         if len(solutions) != 1:
-            found = "; ".join(", ".join(f"{n} = {sp.sstr(_simplify(s[u]))}" for n, u in zip(solve_for, unknowns))
+            found = "; ".join(", ".join(f"{n} = {math_text(_simplify(s[u]))}" for n, u in zip(solve_for, unknowns))
                               for s in solutions) or "a family of values"
             raise ModelError(f"\"solve\" for {', '.join(solve_for)} is ambiguous: several values hold "
                              f"the equilibrium ({found}); give the one meant", where=qw)
@@ -150,7 +151,7 @@ def linearize_plant(plant: Mapping[str, Any], symbols: Mapping[str, sp.Symbol], 
             value = _simplify(solutions[0][u])
             equilibrium[n] = value
             point[variables[n]] = value
-            notes.append(f"input {n} at the equilibrium solved as {n} = {sp.sstr(value)}")
+            notes.append(f"input {n} at the equilibrium solved as {n} = {math_text(value)}")
     if any(not _is_zero(r.xreplace(point)) for r in f):
         raise ModelError("not an equilibrium: the right-hand sides do not vanish there: "
                          + _show_residuals(states, f, point)
@@ -161,7 +162,7 @@ def linearize_plant(plant: Mapping[str, Any], symbols: Mapping[str, sp.Symbol], 
     A = f.jacobian(xs).xreplace(point).applyfunc(_simplify)
     B = f.jacobian(us).xreplace(point).applyfunc(_simplify)
     C, D, h = _outputs(plant, symbols, states, inputs, outputs, variables, point, where)
-    at = ", ".join(f"{n} = {sp.sstr(v)}" for n, v in equilibrium.items())
+    at = ", ".join(f"{n} = {math_text(v)}" for n, v in equilibrium.items())
     notes.insert(0, f"linearized at the equilibrium {at}; states, inputs and outputs are deviations from it")
     return Linearization(A=A, B=B, C=C, D=D, notes=tuple(notes), equilibrium=equilibrium,
                          equations=sp.ImmutableMatrix(f), output_equations=h)
@@ -172,7 +173,7 @@ def _show_residuals(states, f, point) -> str:
     for n, r in zip(states, f):
         value = _simplify(r.xreplace(point))
         if value != 0:
-            shown.append(f"{n}' = {sp.sstr(value)}")
+            shown.append(f"{n}' = {math_text(value)}")
     return ", ".join(shown) or "none"
 
 

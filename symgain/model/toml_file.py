@@ -211,6 +211,7 @@ def parse_target(table: Any, symbols: dict, where: Where) -> TargetSpec:
 
 
 def _parameters(table: Any, file: str) -> tuple[Parameter, ...]:
+    """The declared parameters; a name given a number only (``g = 9.81``) is a constant, not listed."""
     where = Where(file, "parameters")
     if table is None:
         return ()  # a purely numeric plant needs no parameters
@@ -224,13 +225,40 @@ def _parameters(table: Any, file: str) -> tuple[Parameter, ...]:
         if name in RESERVED_NAMES:
             raise ModelError(f"{name!r} is reserved and cannot be a parameter", where=pw)
         if isinstance(spec, (int, float)) and not isinstance(spec, bool):
-            spec = {"nominal": spec}
+            _check_constant(name, spec, pw)
+            continue  # a constant: see _constants
         if not isinstance(spec, dict):
             raise ModelError("must be a table such as { sign = \"positive\", range = [1, 2] }, found "
                              f"{_shown(spec)}", where=pw)
         _check_keys(spec, PARAMETER_KEYS, pw)
         params.append(Parameter.declare(name, where=pw, **spec))
     return tuple(params)
+
+
+def _check_constant(name: str, value, where: Where) -> None:
+    """A constant needs a parameter's name rules and a finite value of bounded size."""
+    import math
+
+    from .identifiers import describe_name, is_identifier
+
+    if not is_identifier(name):
+        raise ModelError(f"constant name {_shown(name)} is not a name: {describe_name(name)}", where=where)
+    if isinstance(value, float) and not math.isfinite(value):
+        raise ModelError(f"a constant must be a finite number, found {_shown(value)}", where=where)
+    if isinstance(value, int) and abs(value) >= 10 ** 300:
+        raise ModelError("a constant must be below 1e300 in size", where=where)
+
+
+def _constants(table: Any) -> dict[str, sp.Expr]:
+    """Names declared with a value only (``g = 9.81``): exact numbers put in place of the name.
+
+    >>> _constants({"g": 9.81, "m": {"sign": "positive"}})
+    {'g': 981/100}
+    """
+    if not isinstance(table, dict):
+        return {}
+    return {name: sp.Integer(value) if isinstance(value, int) else sp.Rational(repr(value))
+            for name, value in table.items() if isinstance(value, (int, float)) and not isinstance(value, bool)}
 
 
 def model_from_text(text: str, file: str = "<model>") -> Model:
@@ -293,7 +321,8 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
     if "name" not in data or not isinstance(data["name"], str):
         raise ModelError("a model needs name = \"identifier\"", where=top.child("name"))
     params = _parameters(data.get("parameters"), file)
-    symbols = {p.name: p.symbol for p in params}
+    constants = _constants(data.get("parameters"))
+    symbols = {**{p.name: p.symbol for p in params}, **constants}
     plant = data.get("plant")
     pw = top.child("plant")
     if not isinstance(plant, dict):
@@ -352,6 +381,9 @@ def model_from_dict(data: dict, file: str = "<model>") -> Model:
     title = data.get("title", "")
     if not isinstance(title, str):
         raise ModelError(f"title must be text, found {_shown(title)}", where=top.child("title"))
+    if constants:
+        notes = (*notes, "constants put in as numbers: "
+                 + ", ".join(f"{k} = {float(v):g}" for k, v in constants.items()))
     return Model(name=data["name"], title=title, parameters=params, states=states, inputs=inputs,
                  outputs=outputs, A=A, B=B, C=C, D=D, source=file, notes=notes, extra=extra,
                  feedforward=feedforward, **targets)

@@ -1,0 +1,166 @@
+"""The closed loop that runs on the machine: every designed part in it, true plant vs controller.
+
+Analyses (``robust``, ``plot --step``) look at one loop built from all the
+parts a design holds:
+
+* state feedback ``u = -K x`` (or, with integral action, ``u = -K x - Ki q``
+  with ``q' = y - r``);
+* with an estimator as well, the controller feeds back the estimate:
+  ``u = -K x_hat (- Ki q)``, ``x_hat' = A x_hat + B u + L (y - C x_hat - D u)``.
+
+The plant keeps the true parameter values; the controller (K, Ki, L and the
+estimator's copy of A, B, C, D) uses ``estimates``: a mapping from
+parameter symbols to what the controller assumes (empty: matched). The loop
+matrix is built symbolically once, so the same object gives closed-form
+polynomials and, compiled, numbers.
+
+Free gains that a gain pattern leaves undetermined need a value before a
+loop can be evaluated: :func:`settle_free_gains` sets each to 0 (or 1 when 0
+makes a validity condition fail at nominal) and says so.
+
+>>> import sympy as sp
+>>> from symgain.model import Model, Parameter, TargetSpec
+>>> from symgain.design import derive
+>>> m = Parameter.declare("m", sign="positive", range=(1, 3))
+>>> model = Model(name="cart", parameters=(m,), states=("p", "v"), inputs=("F",), outputs=("p",),
+...               A=sp.Matrix([[0, 1], [0, 0]]), B=sp.Matrix([[0], [1 / m.symbol]]),
+...               C=sp.Matrix([[1, 0]]), feedback=TargetSpec("poles", {"poles": (-1, -2)}),
+...               estimator=TargetSpec("poles", {"poles": (-5, -5)}))
+>>> loop = closed_loop(derive(model))
+>>> loop.description
+'state feedback u = -K x_hat with the estimator in the loop (gains K, L)'
+>>> sp.factor(loop.matrix.charpoly(sp.Symbol("s")).as_expr())
+(s + 1)*(s + 2)*(s + 5)**2
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import sympy as sp
+
+from ..design import Design
+from ..design.validity import holds_at
+from ..errors import DesignError, Where
+
+__all__ = ["Loop", "closed_loop", "settle_free_gains", "loop_kind", "inline_definitions"]
+
+
+@dataclass(frozen=True)
+class Loop:
+    """x_cl' = matrix x_cl + reference r; y = output x_cl + feedthrough r."""
+
+    description: str
+    matrix: sp.Matrix
+    reference: sp.Matrix  # input matrix of the reference r (one column per output for integral action)
+    output: sp.Matrix
+    feedthrough: sp.Matrix
+    states: tuple[str, ...]
+    needs_reference_gain: bool  # True: scale r by N so that the steady state matches (no integrator)
+
+
+def loop_kind(design: Design) -> str:
+    """Which loop the design closes: "integral", "feedback" or "" (an estimator alone closes none)."""
+    return "integral" if design.integral is not None else "feedback" if design.feedback is not None else ""
+
+
+def settle_free_gains(design: Design) -> tuple[Design, str]:
+    """The design with every free gain set to a number, and a sentence saying which (empty if none)."""
+    free = [g for part in design.parts() for g in part.free_gains]
+    if not free:
+        return design, ""
+    nominal = {p.symbol: p.nominal for p in design.model.parameters if p.nominal is not None}
+    free = list(dict.fromkeys(free))
+    candidates = [[0] * len(free), [1] * len(free)]
+    candidates += [[1 if k == j else 0 for k in range(len(free))] for j in range(len(free))]
+    candidates += [[k + 1 for k in range(len(free))]]
+    choice = dict(zip(free, candidates[-1]))
+    for values in candidates:
+        trial = dict(zip(free, values))
+        try:
+            if not any(holds_at(part.valid_when, {**nominal, **trial}) for part in design.parts()):
+                choice = trial
+                break
+        except TypeError:  # a parameter without a nominal value: keep the first choice
+            choice = trial
+            break
+    parts = {}
+    for part in design.parts():
+        subs = {g: sp.Integer(v) for g, v in choice.items()}
+        parts[part.part] = replace(
+            part, gain=part.gain.xreplace(subs), free_gains=(),
+            valid_when=tuple(c.xreplace(subs) for c in part.valid_when if c.xreplace(subs) is not sp.true),
+            extra={k: (v.xreplace(subs) if isinstance(v, sp.MatrixBase) and k != "gain_symbols" else v)
+                   for k, v in part.extra.items()})
+    said = ", ".join(f"{g} = {v}" for g, v in choice.items())
+    return replace(design, **parts), (f"free gain{'s' if len(choice) > 1 else ''} {said} for this "
+                                      "analysis (the target holds for any value; fix it in the pattern)")
+
+
+def inline_definitions(mat, part=None) -> sp.Matrix:
+    """``mat`` with the named definitions of a compact-form part put in place (none: unchanged)."""
+    definitions = getattr(part, "definitions", ()) or ()
+    if not definitions:
+        return sp.Matrix(mat)
+    subs = {}
+    for symbol, value in definitions:
+        subs[symbol] = sp.sympify(value).xreplace(subs)
+    return sp.Matrix(mat).xreplace(subs)
+
+
+def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
+    """The loop of every designed part; the controller evaluated at ``estimates`` (symbol -> value)."""
+    model = design.model
+    kind = loop_kind(design)
+    if not kind:
+        raise DesignError("an estimator alone closes no loop (its own poles do not depend on the plant); "
+                          "add [feedback] or [integral] to analyse a loop", where=Where(model.source))
+    hat = estimates or {}
+    A, B = sp.Matrix(model.A), sp.Matrix(model.B)
+    n, m = A.rows, B.cols
+    C = sp.Matrix(model.C) if model.C is not None else sp.Matrix([[1] + [0] * (n - 1)])
+    D = sp.Matrix(model.D) if model.D is not None else sp.zeros(C.rows, m)
+    p = C.rows
+
+    def at_hat(mat, part=None):
+        return sp.Matrix(inline_definitions(mat, part)).xreplace(hat)
+
+    if kind == "integral":
+        K = at_hat(design.integral.gain, design.integral)
+        Ki = at_hat(design.integral.extra["integral_gain"], design.integral)
+        gains = "K, Ki"
+        law = "integral action u = -K x - Ki q, q' = y - r"
+    else:
+        K, Ki = at_hat(design.feedback.gain, design.feedback), sp.zeros(m, 0)
+        gains = "K"
+        law = "state feedback u = -K x"
+    q = Ki.cols
+    if design.estimator is not None:
+        L = at_hat(design.estimator.gain, design.estimator)
+        Ah, Bh, Ch, Dh = at_hat(A), at_hat(B), at_hat(C), at_hat(D)
+        # states [x; x_hat; q]; u = -K x_hat - Ki q
+        u_row = sp.Matrix.hstack(sp.zeros(m, n), -K, -Ki)
+        y_row = sp.Matrix.hstack(C, sp.zeros(p, n), sp.zeros(p, q)) + D * u_row
+        x_dot = sp.Matrix.hstack(A, sp.zeros(n, n), sp.zeros(n, q)) + B * u_row
+        y_hat = sp.Matrix.hstack(sp.zeros(p, n), Ch, sp.zeros(p, q)) + Dh * u_row
+        xh_dot = sp.Matrix.hstack(sp.zeros(n, n), Ah, sp.zeros(n, q)) + Bh * u_row + L * (y_row - y_hat)
+        rows = [x_dot, xh_dot]
+        states = (*model.states, *(f"{s}_hat" for s in model.states))
+        law = law.replace("-K x", "-K x_hat") + " with the estimator in the loop"
+        gains += ", L"
+    else:
+        u_row = sp.Matrix.hstack(-K, -Ki)
+        y_row = sp.Matrix.hstack(C, sp.zeros(p, q)) + D * u_row
+        rows = [sp.Matrix.hstack(A, sp.zeros(n, q)) + B * u_row]
+        states = tuple(model.states)
+    if q:
+        rows.append(y_row)  # q' = y - r
+        states = (*states, *(f"q_{y}" for y in (model.outputs or ("y",))))
+    matrix = sp.Matrix.vstack(*rows)
+    size = matrix.rows
+    if q:
+        reference = sp.Matrix.vstack(sp.zeros(size - q, q), -sp.eye(q))
+        feedthrough = sp.zeros(p, q)
+    else:  # r enters through u = ... + N r (N at the design's nominal steady state)
+        reference = sp.Matrix.vstack(B, *([Bh] if design.estimator is not None else []))
+        feedthrough = D
+    return Loop(f"{law} (gains {gains})", matrix, reference, y_row, feedthrough, states, not q)
