@@ -9,6 +9,8 @@ by programs); everything a person reads goes through this module.
 >>> m, w = sp.symbols("m w", positive=True)
 >>> math_text(m * w**2 / (m + 1))
 'm*w^2/(m + 1)'
+>>> math_text(sp.log(20) * m)
+'m*ln(20)'
 >>> condition_text(sp.Ne(m - 2, 0))
 'm - 2 != 0'
 >>> set_text(sp.Interval.open(0, sp.Rational(129, 20)), "r")
@@ -48,6 +50,9 @@ class _MathPrinter(StrPrinter):
 
     def _print_Abs(self, expr):
         return f"|{self._print(expr.args[0])}|"
+
+    def _print_log(self, expr):
+        return "ln(" + ", ".join(self._print(a) for a in expr.args) + ")"
 
     def _print_ImaginaryUnit(self, expr):
         return "i"

@@ -56,6 +56,17 @@ class Loop:
     feedthrough: sp.Matrix
     states: tuple[str, ...]
     needs_reference_gain: bool  # True: scale r by N so that the steady state matches (no integrator)
+    discrete: bool = False  # True: x_cl[k+1] = matrix x_cl[k] + reference r[k] (a sampled-data design)
+    period: sp.Expr | None = None  # the sample period of a discrete loop
+
+    def stable(self, eigenvalues) -> bool:
+        """Asymptotically stable: real parts < 0, or inside the unit circle for a discrete loop."""
+        import numpy as np
+
+        eigenvalues = np.asarray(eigenvalues)
+        if self.discrete:
+            return bool(np.max(np.abs(eigenvalues)) < 1)
+        return bool(np.max(eigenvalues.real) < 0)
 
 
 def loop_kind(design: Design) -> str:
@@ -108,14 +119,23 @@ def inline_definitions(mat, part=None) -> sp.Matrix:
 
 
 def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
-    """The loop of every designed part; the controller evaluated at ``estimates`` (symbol -> value)."""
+    """The loop of every designed part; the controller evaluated at ``estimates`` (symbol -> value).
+
+    A sampled-data design closes a loop in discrete time: x[k+1] = Phi x[k] + Gamma u[k],
+    q[k+1] = q[k] + T (y - r), the estimator in its prediction or current form; the
+    loop's ``discrete`` flag is then True (stable: every eigenvalue inside the unit circle).
+    """
     model = design.model
     kind = loop_kind(design)
     if not kind:
         raise DesignError("an estimator alone closes no loop (its own poles do not depend on the plant); "
                           "add [feedback] or [integral] to analyse a loop", where=Where(model.source))
     hat = estimates or {}
-    A, B = sp.Matrix(model.A), sp.Matrix(model.B)
+    sampled = design.sampled
+    discrete = sampled is not None
+    A = sp.Matrix(sampled.Phi if discrete else model.A)
+    B = sp.Matrix(sampled.Gamma if discrete else model.B)
+    T = sp.sympify(sampled.period) if discrete else sp.Integer(1)
     n, m = A.rows, B.cols
     C = sp.Matrix(model.C) if model.C is not None else sp.Matrix([[1] + [0] * (n - 1)])
     D = sp.Matrix(model.D) if model.D is not None else sp.zeros(C.rows, m)
@@ -128,39 +148,60 @@ def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
         K = at_hat(design.integral.gain, design.integral)
         Ki = at_hat(design.integral.extra["integral_gain"], design.integral)
         gains = "K, Ki"
-        law = "integral action u = -K x - Ki q, q' = y - r"
+        law = ("integral action u = -K x - Ki q, q[k+1] = q[k] + T (y - r)" if discrete
+               else "integral action u = -K x - Ki q, q' = y - r")
     else:
         K, Ki = at_hat(design.feedback.gain, design.feedback), sp.zeros(m, 0)
         gains = "K"
         law = "state feedback u = -K x"
     q = Ki.cols
+    current = discrete and design.estimator is not None and model.sampling.estimator_form == "current"
+    if current and any(e != 0 for e in D):
+        raise DesignError("a current-form estimator with a direct feedthrough D is not analysed in the loop "
+                          "(u would depend on itself)", where=Where(model.source))
     if design.estimator is not None:
         L = at_hat(design.estimator.gain, design.estimator)
         Ah, Bh, Ch, Dh = at_hat(A), at_hat(B), at_hat(C), at_hat(D)
-        # states [x; x_hat; q]; u = -K x_hat - Ki q
-        u_row = sp.Matrix.hstack(sp.zeros(m, n), -K, -Ki)
-        y_row = sp.Matrix.hstack(C, sp.zeros(p, n), sp.zeros(p, q)) + D * u_row
-        x_dot = sp.Matrix.hstack(A, sp.zeros(n, n), sp.zeros(n, q)) + B * u_row
-        y_hat = sp.Matrix.hstack(sp.zeros(p, n), Ch, sp.zeros(p, q)) + Dh * u_row
-        xh_dot = sp.Matrix.hstack(sp.zeros(n, n), Ah, sp.zeros(n, q)) + Bh * u_row + L * (y_row - y_hat)
-        rows = [x_dot, xh_dot]
-        states = (*model.states, *(f"{s}_hat" for s in model.states))
-        law = law.replace("-K x", "-K x_hat") + " with the estimator in the loop"
+        x_sel = sp.Matrix.hstack(sp.eye(n), sp.zeros(n, n), sp.zeros(n, q))
+        e_sel = sp.Matrix.hstack(sp.zeros(n, n), sp.eye(n), sp.zeros(n, q))  # x_hat (or x_bar)
+        q_sel = sp.Matrix.hstack(sp.zeros(q, n), sp.zeros(q, n), sp.eye(q))
+        if current:  # x_hat[k] = x_bar[k] + L (y[k] - C x_bar[k]); states [x; x_bar; q]
+            x_hat = e_sel + L * (C * x_sel - Ch * e_sel)
+            u_row = -K * x_hat - Ki * q_sel
+            xh_next = Ah * x_hat + Bh * u_row
+        else:  # prediction form (continuous: x_hat' = A x_hat + B u + L (y - C x_hat - D u))
+            u_row = -K * e_sel - Ki * q_sel
+            y_hat = Ch * e_sel + Dh * u_row
+            xh_next = Ah * e_sel + Bh * u_row + L * ((C * x_sel + D * u_row) - y_hat)
+        y_row = C * x_sel + D * u_row
+        rows = [A * x_sel + B * u_row, xh_next]
+        states = (*model.states, *(f"{s}_{'bar' if current else 'hat'}" for s in model.states))
+        law = law.replace("-K x", "-K x_hat") + (" with the current-form estimator in the loop" if current
+                                                 else " with the estimator in the loop")
         gains += ", L"
     else:
-        u_row = sp.Matrix.hstack(-K, -Ki)
-        y_row = sp.Matrix.hstack(C, sp.zeros(p, q)) + D * u_row
-        rows = [sp.Matrix.hstack(A, sp.zeros(n, q)) + B * u_row]
+        x_sel = sp.Matrix.hstack(sp.eye(n), sp.zeros(n, q))
+        q_sel = sp.Matrix.hstack(sp.zeros(q, n), sp.eye(q))
+        u_row = -K * x_sel - Ki * q_sel
+        y_row = C * x_sel + D * u_row
+        rows = [A * x_sel + B * u_row]
         states = tuple(model.states)
     if q:
-        rows.append(y_row)  # q' = y - r
+        rows.append((q_sel + T * y_row) if discrete else y_row)  # q[k+1] = q[k] + T (y - r); q' = y - r
         states = (*states, *(f"q_{y}" for y in (model.outputs or ("y",))))
     matrix = sp.Matrix.vstack(*rows)
     size = matrix.rows
     if q:
-        reference = sp.Matrix.vstack(sp.zeros(size - q, q), -sp.eye(q))
+        reference = sp.Matrix.vstack(sp.zeros(size - q, q), -T * sp.eye(q))
         feedthrough = sp.zeros(p, q)
     else:  # r enters through u = ... + N r (N at the design's nominal steady state)
         reference = sp.Matrix.vstack(B, *([Bh] if design.estimator is not None else []))
         feedthrough = D
-    return Loop(f"{law} (gains {gains})", matrix, reference, y_row, feedthrough, states, not q)
+    where = ""
+    if discrete:
+        from ..mathtext import math_text, number_text
+
+        where = (f" at the sample period T = {number_text(float(T))} s" if T.is_number else
+                 " at the sample period T" if str(T) == "T" else f" at the sample period T = {math_text(T)}")
+    return Loop(f"{law} (gains {gains}){where}", matrix, reference, y_row, feedthrough, states, not q,
+                discrete=discrete, period=T if discrete else None)

@@ -175,7 +175,7 @@ def analyze_mismatch(design: Design, mismatched: list[str], *, exact: bool = Tru
     loop = closed_loop(design, to_hat)
     closed = loop.matrix.xreplace(to_true)
     conditions, char, coeffs = None, None, []
-    if _closed_form_feasible(closed, list(ratios.values())):
+    if not loop.discrete and _closed_form_feasible(closed, list(ratios.values())):
         poly = closed.charpoly(S)
         coeffs = [sp.cancel(sp.together(c)) for c in poly.all_coeffs()]
         denominators = [sp.fraction(c)[1] for c in coeffs]
@@ -277,7 +277,7 @@ class _RatioEigenvalues:
         M = self.loop(true, values)
         if not np.all(np.isfinite(M)):
             return False
-        return bool(np.max(np.linalg.eigvals(M).real) < 0)
+        return self.loop.stable(np.linalg.eigvals(M))
 
     def __call__(self, values: dict[str, float]) -> list[tuple[float, float]]:
         verdicts = [self._stable(values, r) for r in self.ratios]
@@ -396,6 +396,8 @@ class ClosedLoop:
         hats = [sp.Dummy(f"{p.name}_hat", **p.symbol.assumptions0) for p in model.parameters]
         loop = closed_loop(design, dict(zip(true, hats)))
         self.description = loop.description
+        self.discrete = loop.discrete
+        self.stable = loop.stable
         self._M = lambdify(true + hats, loop.matrix, modules="numpy")
 
     def __call__(self, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:

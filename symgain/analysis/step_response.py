@@ -92,11 +92,30 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
         return (np.real(np.array(M, dtype=complex)), np.real(np.array(R, dtype=complex)).reshape(-1, 1),
                 np.real(np.array(Cm, dtype=complex)).reshape(1, -1), float(np.real(complex(Dm))))
 
+    period = None
+    if loop.discrete:
+        f_period = lambdify(true, sp.sympify(loop.period), "numpy")
+
+        def period(point) -> float:
+            return float(f_period(*[point[n] for n in names]))
+
     def reference_gain(M, R, Cm, Dm) -> float:
         if not loop.needs_reference_gain:
             return 1.0
-        dc = float((Dm - Cm @ np.linalg.solve(M, R)).item())
+        size = M.shape[0]
+        steady = np.eye(size) - M if loop.discrete else -M  # x_ss = (I - M)^-1 R r, or -M^-1 R r
+        try:
+            dc = float((Dm + Cm @ np.linalg.solve(steady, R)).item())
+        except np.linalg.LinAlgError:
+            return 1.0
         return 1.0 / dc if dc != 0 else 1.0
+
+    def rates(eig, point) -> np.ndarray:
+        """Decay rates in 1/s (continuous: -Re s; discrete: -ln|z| / T)."""
+        if loop.discrete:
+            with np.errstate(divide="ignore"):
+                return -np.log(np.maximum(np.abs(eig), 1e-300)) / period(point)
+        return -eig.real
 
     points = corner_points(design)
     nominal = points[0]
@@ -110,18 +129,30 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
         if not np.all(np.isfinite(M)):
             M = np.nan_to_num(M)
         eig = np.linalg.eigvals(M)
-        loops.append((point, M, R * N, Cm, Dm * N, bool(np.max(eig.real) < 0), float(np.min(np.abs(eig.real)))))
+        loops.append((point, M, R * N, Cm, Dm * N, loop.stable(eig), float(np.min(np.abs(rates(eig, point))))))
     slowest0 = loops[0][6]
     slowest = min([lp[6] for lp in loops if lp[5]] + [slowest0])
     horizon = min(6.0 / max(slowest, 1e-9), 10 * 6.0 / max(slowest0, 1e-9))  # at most 10x the nominal
     t = np.linspace(0.0, horizon, n_samples)
     runs = []
     for point, M, RN, Cm, DN, stable, _ in loops:
-        system = scipy.signal.StateSpace(M, RN, Cm, np.array([[DN]]))
-        with np.errstate(all="ignore"), warnings.catch_warnings():
-            warnings.simplefilter("ignore")  # an unstable corner may overflow; it is drawn clipped
-            _, y = scipy.signal.step(system, T=t)
-        runs.append(StepRun(_label(point, nominal, units), point, t, np.asarray(y).ravel(), stable))
+        if loop.discrete:  # x[k+1] = M x[k] + R N r, the output held between samples
+            dt = period(point)
+            steps = int(min(max(horizon / dt, 2), 20000))
+            x, ys = np.zeros((M.shape[0], 1)), []
+            with np.errstate(all="ignore"):
+                for _ in range(steps + 1):
+                    ys.append(float((Cm @ x).item() + DN))
+                    x = M @ x + RN
+            times = np.arange(steps + 1) * dt
+            run_t, y = times, np.array(ys)
+        else:
+            system = scipy.signal.StateSpace(M, RN, Cm, np.array([[DN]]))
+            with np.errstate(all="ignore"), warnings.catch_warnings():
+                warnings.simplefilter("ignore")  # an unstable corner may overflow; it is drawn clipped
+                _, y = scipy.signal.step(system, T=t)
+            run_t = t
+        runs.append(StepRun(_label(point, nominal, units), point, run_t, np.asarray(y).ravel(), stable))
         if progress is not None:
             progress(1)
     return runs

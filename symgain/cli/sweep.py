@@ -146,13 +146,15 @@ def run_schedule(args) -> int:
     return 0
 
 
-def _interval_text(lo: float, hi: float, var: str) -> str:
+def _interval_text(lo: float, hi: float, var: str, scanned: bool = False) -> str:
+    """``0.5 < r < 2``; with ``scanned`` an open end says how far the eigenvalue scan reached."""
     import numpy as np
 
     from ..mathtext import number_text
 
     if not np.isfinite(hi):
-        return f"{var} > {number_text(lo)}" if lo > 0 else f"every {var} > 0"
+        reach = " (up to the largest ratio scanned, 1000)" if scanned else ""
+        return (f"{var} > {number_text(lo)}" if lo > 0 else f"every {var} > 0") + reach
     return f"{number_text(lo)} < {var} < {number_text(hi)}"
 
 
@@ -215,9 +217,11 @@ def run_robust(args) -> int:
               if model.parameter(name).range is not None}
     path = None
     if sweeps:
-        poles0 = np.linalg.eigvals(ClosedLoop(design)(nominal, nominal))
+        numeric_loop = ClosedLoop(design)
+        poles0 = np.linalg.eigvals(numeric_loop(nominal, nominal))
         path = write_atomic(folder / f"{model.name}-poles.png",
-                            png_bytes(pole_migration_figure(model, sweeps, poles0)))
+                            png_bytes(pole_migration_figure(model, sweeps, poles0,
+                                                                  numeric_loop.discrete)))
     ratio_words = ", ".join(f"{analysis.ratios[n]} = {n}/{analysis.hats[n]}" for n in analysis.mismatched)
     print(f"{model.name}: controller designed with {', '.join(map(str, analysis.hats.values()))}; "
           f"the plant has the true values ({ratio_words})")
@@ -225,8 +229,10 @@ def run_robust(args) -> int:
     if note:
         print(f"note: {note}")
     if not closed_form:
-        print("method: eigenvalues of the loop over ratios 0.001..1000 (no closed form: the loop is larger "
-              "than 4 states, too long or not rational in the ratio)")
+        why = ("a sampled-data loop: stable when every eigenvalue lies inside the unit circle"
+               if design.sampled is not None else
+               "no closed form: the loop is larger than 4 states, too long or not rational in the ratio")
+        print(f"method: eigenvalues of the loop over ratios 0.001..1000 ({why})")
     elif not args.quiet:
         from ..emit.terminal import format_polynomial, terminal_width
 
@@ -246,7 +252,8 @@ def run_robust(args) -> int:
         print(f"{name} (controller assumes {nominal[name]:g} {unit}; other values at nominal):".replace(" ;", ";"))
         if rr.exact is not None:
             print(f"  stable ratio {ratio} = {name}/{name}_hat, exact: {set_text(rr.exact, ratio)}")
-        print("  stable ratio, numerically: " + (" or ".join(_interval_text(*i, ratio) for i in rr.intervals)
+        print("  stable ratio, numerically: " + (" or ".join(_interval_text(*i, ratio, not closed_form)
+                                                            for i in rr.intervals)
                                                  or "none"))
         if rr.declared is not None:
             verdict = "stable throughout" if rr.declared_stable else "NOT stable throughout"

@@ -120,10 +120,11 @@ def schedule_figure(schedule) -> Figure:
     return fig
 
 
-def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray) -> Figure:
+def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray, discrete: bool = False) -> Figure:
     """Closed-loop poles as the true value of each parameter sweeps its range (estimate at nominal).
 
-    ``sweeps``: name -> (true values, poles array of shape (count, n)).
+    ``sweeps``: name -> (true values, poles array of shape (count, n)). ``discrete``: poles in z
+    (a sampled-data loop), drawn with the unit circle as the stability boundary.
     """
     fig = new_figure(7.0 * len(sweeps), 6.0)
     panels = fig.subplots(1, len(sweeps), squeeze=False)[0]
@@ -134,15 +135,21 @@ def pole_migration_figure(model, sweeps: dict, nominal_poles: np.ndarray) -> Fig
             ax.scatter(poles[:, col].real, poles[:, col].imag, c=values, cmap=cmap, norm=norm, s=9)
         ax.plot(nominal_poles.real, nominal_poles.imag, "kx", markersize=10, mew=2,
                 label="design poles (true = estimate)")
-        ax.axvline(0.0, color="0.3", lw=1, ls="--")
+        if discrete:
+            angle = np.linspace(0.0, 2 * np.pi, 361)
+            ax.plot(np.cos(angle), np.sin(angle), color="0.3", lw=1, ls="--")
+            ax.set_aspect("equal", adjustable="datalim")
+            unstable = np.abs(poles).max() >= 1
+        else:
+            ax.axvline(0.0, color="0.3", lw=1, ls="--")
+            unstable = poles.real.max() >= 0
         ax.axhline(0.0, color="0.7", lw=0.8)
-        unstable = poles.real.max() >= 0
         nominal, unit = model.parameter(name).nominal, plot_text(model.parameter(name).unit)
         ax.set_title(f"true {name} over its range, controller assumes {name} = {nominal:g}"
                      + (f" {unit}" if unit else "")
                      + ("\n(some true values give an unstable loop)" if unstable else ""), fontsize=11)
-        ax.set_xlabel("real part [1/s]")
-        ax.set_ylabel("imaginary part [rad/s]")
+        ax.set_xlabel("real part of z" if discrete else "real part [1/s]")
+        ax.set_ylabel("imaginary part of z" if discrete else "imaginary part [rad/s]")
         ax.grid(True, alpha=0.3)
         ax.legend(loc="best")
         fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, label=f"true {_unit(model, name)}")

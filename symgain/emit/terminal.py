@@ -194,4 +194,6 @@ def format_check(report: CheckReport, names: list[str]) -> str:
                  " poles repeat, the gain is not unique or the placement is too ill-conditioned to compare)")
     lines.append("closed-loop err: max difference of the characteristic-polynomial coefficients of the"
                  " numeric closed loop from the target's, with s scaled by the size of the target roots")
+    width = terminal_width()
+    lines = [piece for line in lines for piece in (_wrap(line, width) if line else [""])]
     return "\n".join(lines) + "\n"
