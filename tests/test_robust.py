@@ -109,14 +109,22 @@ def test_robust_command(tmp_path, capsys):
     assert out.err == ""
 
 
-def test_free_gains_are_refused_in_one_line():
-    """A design with free gains (a family) is refused with exit 2, not an internal error."""
+def test_free_gains_are_settled_with_a_note_and_refused_by_the_library(tmp_path):
+    """A design with free gains (a family): the command settles them and says so; the API refuses."""
     import subprocess
     import sys
     from pathlib import Path
 
+    from symgain.analysis.robust import analyze_mismatch
+    from symgain.design import derive
+    from symgain.errors import DesignError
+    from symgain.model.toml_file import load_model
+
     model = Path(__file__).parent.parent / "examples" / "twin_thruster_boat.toml"
-    done = subprocess.run([sys.executable, "-m", "symgain", "robust", str(model), "--mismatch", "m"],
+    done = subprocess.run([sys.executable, "-m", "symgain", "robust", str(model), "--mismatch", "m", "--quiet",
+                           "-o", str(tmp_path)],
                           capture_output=True, text=True, cwd=Path(__file__).parent.parent)
-    assert done.returncode == 2, done.stderr
-    assert len(done.stderr.strip().splitlines()) == 1 and "k_21" in done.stderr
+    assert done.returncode == 0, done.stderr
+    assert "note: free gain k_21 = 0 for this analysis" in done.stdout
+    with pytest.raises(DesignError, match="k_21"):
+        analyze_mismatch(derive(load_model(model)), ["m"])

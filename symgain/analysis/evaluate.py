@@ -151,7 +151,11 @@ class GainEvaluator:
                 try:
                     func(**args)
                 except ValueError as error:
-                    said = str(error).split("condition ", 1)[-1].split(" fails", 1)[0]
+                    message = str(error)
+                    if "condition " in message:
+                        said = message.split("condition ", 1)[1].split(" fails", 1)[0]
+                    else:  # a declared sign or range: "function: m must be ... (declared sign), found ..."
+                        said = message.split(": ", 1)[-1].split(", found", 1)[0].rstrip(",")
                     failed.append(self._plain.get(said, said))
         return list(dict.fromkeys(failed))
 

@@ -189,6 +189,14 @@ def _in_z(part: GainDesign) -> bool:
     return part.target is not None and Z in part.target.polynomial.free_symbols
 
 
+def _trivially_equal(lhs, rhs) -> bool:
+    """Both sides the same expression (expanded when small; large ones are compared as written)."""
+    difference = sp.sympify(lhs - rhs)
+    if difference == 0:
+        return True
+    return sp.count_ops(difference) <= 200 and sp.expand(difference) == 0
+
+
 def _step(part: GainDesign, step: Step) -> list[str]:
     key = f"{part.part}.{step.name}"
     var = "z" if _in_z(part) else "s"
@@ -214,7 +222,7 @@ def _step(part: GainDesign, step: Step) -> list[str]:
             return out + ["None: the declared signs of the parameters rule out every singular case."]
         rows = []
         for k, item in enumerate(value):
-            if isinstance(item, sp.Eq) and sp.simplify(item.lhs - item.rhs) == 0:
+            if item is sp.true or (isinstance(item, sp.Eq) and _trivially_equal(item.lhs, item.rhs)):
                 continue  # 0 = 0: a power of s the pattern leaves unconstrained
             if isinstance(item, sp.Eq):
                 label = f"{var}^{{{len(value) - 1 - k}}}" if step.name == "coefficient_equations" else ""

@@ -248,11 +248,15 @@ def unit_tex(unit: str) -> str:
     '$\\mathrm{kg\\,m^{2}}$'
     >>> unit_tex("")
     ''
+    >>> unit_tex("$x$ & ~")
+    '\\$x\\$ \\& \\textasciitilde{}'
     """
     import re as _re
 
     if not unit:
         return ""
+    if not _re.fullmatch(r"[A-Za-z0-9 */^().{}-]+", unit) or unit.count("{") != unit.count("}"):
+        return text(unit)  # anything else is set as plain text, escaped
     parts = _re.split(r"\^\{?\(?(-?[0-9.]+)\)?\}?", unit.strip())
     body = "".join(text(piece).replace("*", r"\,").replace(" ", r"\,") if k % 2 == 0 else f"^{{{piece}}}"
                    for k, piece in enumerate(parts))

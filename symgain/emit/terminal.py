@@ -187,6 +187,7 @@ def format_check(report: CheckReport, names: list[str]) -> str:
         c = report.counts(part)
         lines.append(f"  {c['ok']} ok, {c['fail']} failed, {c['skipped']} skipped")
         lines.append("")
+    table_end = len(lines)
     if "sampled_plant" in report.points:
         lines.append("sampled_plant: relative difference of Phi, Gamma from scipy.signal.cont2discrete "
                      "(in the gain column); gains are compared on scipy's sampled plant, polynomials in z")
@@ -194,6 +195,6 @@ def format_check(report: CheckReport, names: list[str]) -> str:
                  " poles repeat, the gain is not unique or the placement is too ill-conditioned to compare)")
     lines.append("closed-loop err: max difference of the characteristic-polynomial coefficients of the"
                  " numeric closed loop from the target's, with s scaled by the size of the target roots")
-    width = terminal_width()
-    lines = [piece for line in lines for piece in (_wrap(line, width) if line else [""])]
+    width = terminal_width()  # the explanations wrap; the table rows stay whole
+    lines = lines[:table_end] + [piece for line in lines[table_end:] for piece in _wrap(line, width)]
     return "\n".join(lines) + "\n"
