@@ -43,15 +43,18 @@ def run_emit(args) -> int:
     from ..errors import ModelError
     from ..model.toml_file import load_model
 
+    from ..emit.files import prepare_folder
+
     design = derive_and_warn(load_model(args.model), form=args.form)
-    sections, figures = None, []
+    prepare_folder(args.out)  # a bad output path is refused before the work; the folder is made on writing
+    sections, figures = None, {}
     if args.with_simulation:
         if "latex" not in args.to:
             raise ModelError("--with-simulation adds a section to the LaTeX report: add --to latex")
         from ..analysis.simulation.latex_section import simulation_for_report
 
-        sections, figures = simulation_for_report(design, args.out, args.name or design.model.name)
-    for path in [*emit(design, args.to, args.out, name=args.name, precision=args.precision,
-                       latex_sections=sections), *figures]:
+        sections, figures = simulation_for_report(design, args.name or design.model.name)
+    for path in emit(design, args.to, args.out, name=args.name, precision=args.precision,
+                     latex_sections=sections, extra_files=figures):
         print(path)
     return 0
