@@ -98,8 +98,10 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
                      f"{_SIGN_WORDS[signs.get(name, 'real')]}, range {_range_text(rng)}")
     if fn.branch is not None:
         lines += ["", f"Solution branch {fn.branch} of the design (several branches reach the target)."]
-    lines += ["", "Every declared range is enforced (ValueError outside it, NaN gains with on_invalid=\"nan\")"
-              " unless check_ranges=False.", "", "Valid when (otherwise ValueError):"]
+    if any(rng for *_, rng in fn.meanings):
+        lines += ["", "Outside a declared range (the design envelope): ValueError, or NaN gains with",
+                  "on_invalid=\"nan\"; check_ranges=False evaluates there (the signs still hold)."]
+    lines += ["", "Valid when (otherwise ValueError):"]
     if fn.conditions or fn.nonnegative:
         lines += [f"    {python_text(sp.sstr(c))} != 0" for c in fn.conditions]
         lines += [f"    {python_text(sp.sstr(c))} >= 0  (the branch is real)" for c in fn.nonnegative]
