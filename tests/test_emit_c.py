@@ -52,12 +52,12 @@ int main(void)
 """
 
 
-def build_and_run(design, fn, folder, prefix, precision, values):
+def build_and_run(design, fn, folder, prefix, precision, values, flags=()):
     paths = emit(design, ["c"], folder, name=prefix, precision=precision)
     ctype = "float" if precision == "single" else "double"
     (folder / "driver.c").write_text(driver(prefix, fn, ctype))
     exe = folder / "prog"
-    subprocess.run([CC, *FLAGS, "-o", str(exe), str(folder / "driver.c"), str(paths[1]), "-lm"],
+    subprocess.run([CC, *FLAGS, *flags, "-o", str(exe), str(folder / "driver.c"), str(paths[1]), "-lm"],
                    check=True, capture_output=True, text=True)
     n = len(next(iter(values.values())))
     text = "\n".join(" ".join(repr(float(values[a][i])) for a in fn.arguments) for i in range(n)) + "\n"
@@ -95,8 +95,11 @@ def test_condition_error_code_and_untouched_matrix(tmp_path):
     (fn,) = functions_of(design)
     values = {"lambda": np.array([1.5, 1.5, 1.2]), "int": np.array([2.0, 0.0, 1e-14]),
               "omega_n": np.array([2.0, 2.0, 2.5])}
-    codes, got, paths = build_and_run(design, fn, tmp_path, "odd", "double", values)
+    # int = 0 and 1e-14 lie outside int's range [0.5, 2]: compiled without the range tests to reach
+    # the condition (with them: -5, the range code of the second of three arguments)
+    codes, got, paths = build_and_run(design, fn, tmp_path, "odd", "double", values, flags=["-DODD_NO_RANGE_CHECKS"])
     assert codes.tolist() == [0, 1, 1]
+    assert build_and_run(design, fn, tmp_path, "odd", "double", values)[0].tolist() == [0, -5, -5]
     # K = [2 lambda omega_n^2 / int, (3 lambda omega_n - 1) / int], worked by hand for poles -w, -2w
     np.testing.assert_allclose(got[0], [[2 * 1.5 * 4 / 2, (3 * 1.5 * 2 - 1) / 2]], rtol=1e-15)
     assert (got[1:] == SENTINEL).all()  # untouched on failure

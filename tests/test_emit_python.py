@@ -60,24 +60,26 @@ def test_broadcasting_and_docstring(tmp_path):
 def test_condition_failure_and_keyword_names(tmp_path):
     design = design_of("odd")  # parameters lambda, int, omega_n; condition int != 0
     module, file = load_emitted(design, tmp_path, "odd_mod")
-    assert 'def feedback_gain(*, lambda_p, int, omega_n, on_invalid="raise"):' in file.read_text()
+    assert ('def feedback_gain(*, lambda_p, int, omega_n, on_invalid="raise", check_ranges=True):'
+            in file.read_text())
     # K = [2 lambda omega_n^2 / int, (3 lambda omega_n - 1) / int], worked by hand for poles -w, -2w
     k = module.feedback_gain(lambda_p=1.5, int=2.0, omega_n=2.0)
     np.testing.assert_allclose(k, [[2 * 1.5 * 4 / 2, (3 * 1.5 * 2 - 1) / 2]], rtol=1e-15)
+    beyond = {"check_ranges": False}  # int = 0 and the values below lie outside int's range [0.5, 2]
     with pytest.raises(ValueError, match=r"int != 0.*these parameter values"):
-        module.feedback_gain(lambda_p=1.5, int=0.0, omega_n=2.0)
+        module.feedback_gain(lambda_p=1.5, int=0.0, omega_n=2.0, **beyond)
     gains = np.array([[1.0, 2.0, 3.0], [4.0, 0.0, 5.0]])
     with pytest.raises(ValueError, match=r"int != 0 fails at index \(1, 1\)"):
-        module.feedback_gain(lambda_p=1.5, int=gains, omega_n=2.0)
+        module.feedback_gain(lambda_p=1.5, int=gains, omega_n=2.0, **beyond)
     # a round-off zero counts as zero (|f| <= 1e-12 (1 + |terms|)), a small real value does not
     with pytest.raises(ValueError):
-        module.feedback_gain(lambda_p=1.5, int=1e-13, omega_n=2.0)
-    assert np.isfinite(module.feedback_gain(lambda_p=1.5, int=1e-9, omega_n=2.0)).all()
+        module.feedback_gain(lambda_p=1.5, int=1e-13, omega_n=2.0, **beyond)
+    assert np.isfinite(module.feedback_gain(lambda_p=1.5, int=1e-9, omega_n=2.0, **beyond)).all()
     # on_invalid="nan" (what schedules use): NaN exactly where the condition fails, the same
     # numbers elsewhere
-    marked = module.feedback_gain(lambda_p=1.5, int=gains, omega_n=2.0, on_invalid="nan")
+    marked = module.feedback_gain(lambda_p=1.5, int=gains, omega_n=2.0, on_invalid="nan", **beyond)
     assert np.isnan(marked[1, 1]).all() and np.isfinite(np.delete(marked.reshape(6, 2), 4, axis=0)).all()
-    np.testing.assert_array_equal(marked[0, 2], module.feedback_gain(lambda_p=1.5, int=3.0, omega_n=2.0))
+    np.testing.assert_array_equal(marked[0, 2], module.feedback_gain(lambda_p=1.5, int=3.0, omega_n=2.0, **beyond))
     with pytest.raises(ValueError, match="on_invalid"):
         module.feedback_gain(lambda_p=1.5, int=2.0, omega_n=2.0, on_invalid="ignore")
 

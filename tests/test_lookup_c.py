@@ -91,10 +91,10 @@ int main(void) {
 """
 
 
-def _compile_and_run(tmp_path, source: str, main: str, queries: list) -> list:
+def _compile_and_run(tmp_path, source: str, main: str, queries: list, flags=()) -> list:
     (tmp_path / "table.c").write_text(source + main)
     exe = tmp_path / "table"
-    subprocess.run([CC, "-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", str(tmp_path / "table.c"),
+    subprocess.run([CC, "-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", *flags, str(tmp_path / "table.c"),
                     "-o", str(exe), "-lm"], check=True, capture_output=True, text=True)
     text = "\n".join(" ".join(repr(float(v)) for v in q) for q in queries) + "\n"
     out = subprocess.run([str(exe)], input=text, check=True, capture_output=True, text=True).stdout
@@ -118,9 +118,17 @@ def test_compiled_1d_table_against_exact_formulas(tmp_path):
         exact = [float(e.expr.evalf(20, subs=subs)) for e in sched.entries]  # sympy, not the table
         for k, e in enumerate(sched.entries):
             assert abs(row[1 + k] - exact[k]) <= err[e.identifier].absolute * 1.05 + 1e-12
-    # outside the grid: clamped to the edge and status 1
-    edge = _compile_and_run(tmp_path, source, _MAIN_1D % {"N": 3, "name": "sorting_conveyor"}, [[100.0]])[0]
+    # outside the declared range of m, [5, 40] (the design envelope): -2 and NaN gains
+    main = _MAIN_1D % {"N": 3, "name": "sorting_conveyor"}
+    for row in _compile_and_run(tmp_path, source, main, [[100.0], [4.0], [-1.0]]):
+        assert row[0] == -2 and np.isnan(row[1:]).all()
+    # compiled without the range test: outside the grid, clamped to the edge and status 1
+    edge = _compile_and_run(tmp_path, source, main, [[100.0]], flags=["-DSORTING_CONVEYOR_NO_RANGE_CHECKS"])[0]
     assert edge[0] == 1 and np.allclose(edge[1:], sched.gains[:, -1], rtol=1e-14)
+    # inside the range but past a grid that stops short of it: clamped too
+    short = parse_axis("m=5:30:6", model)
+    clamp = _compile_and_run(tmp_path, lookup_table_c(compute_schedule(design, [short])), main, [[35.0]])[0]
+    assert clamp[0] == 1
 
 
 @pytest.mark.skipif(CC is None, reason="no C compiler")

@@ -82,6 +82,9 @@ class GainEvaluator:
     (missing names at nominal) and returns ``(gains, valid)``: an array of shape
     ``(n_gains, *broadcast_shape)`` and a boolean array that is False where a
     ``valid_when`` condition fails or a gain is not a finite real number.
+    Sweeps (schedules, robustness, sensitivity) may go past the declared ranges on
+    purpose, so the evaluator calls the functions with ``check_ranges=False``; the
+    declared signs still hold.
     """
 
     def __init__(self, design: Design):
@@ -137,7 +140,7 @@ class GainEvaluator:
         args = self._args(values)
         shape = np.broadcast_shapes(*(a.shape for a in args.values()))
         with np.errstate(all="ignore"):
-            blocks = [func(**args, on_invalid="nan").reshape(shape + (rows * cols,))
+            blocks = [func(**args, on_invalid="nan", check_ranges=False).reshape(shape + (rows * cols,))
                       for func, (rows, cols) in self._functions]
         gains = np.moveaxis(np.concatenate(blocks, axis=-1), -1, 0)
         return gains, np.isfinite(gains).all(axis=0)
@@ -149,7 +152,7 @@ class GainEvaluator:
         with np.errstate(all="ignore"):
             for func, _ in self._functions:
                 try:
-                    func(**args)
+                    func(**args, check_ranges=False)
                 except ValueError as error:
                     message = str(error)
                     if "condition " in message:

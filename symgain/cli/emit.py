@@ -41,20 +41,22 @@ def add_to(sub) -> None:
 def run_emit(args) -> int:
     from . import derive_and_warn
     from ..emit import emit
-    from ..emit.files import default_folder
+    from ..emit.files import default_folder, prepare_folder
     from ..errors import ModelError
     from ..model.toml_file import load_model
 
-    design = derive_and_warn(load_model(args.model), form=args.form)
-    folder = args.output or default_folder(design.model.name)
-    sections, figures = None, []
+    model = load_model(args.model)
+    folder = args.output or default_folder(model.name)
+    prepare_folder(folder)  # a bad output path is refused before the work; the folder is made on writing
+    design = derive_and_warn(model, form=args.form)
+    sections, figures = None, {}
     if args.with_simulation:
         if "latex" not in args.to:
             raise ModelError("--with-simulation adds a section to the LaTeX report: add --to latex")
         from ..analysis.simulation.latex_section import simulation_for_report
 
-        sections, figures = simulation_for_report(design, folder, args.name or design.model.name)
-    for path in [*emit(design, args.to, folder, name=args.name, precision=args.precision,
-                       latex_sections=sections), *figures]:
+        sections, figures = simulation_for_report(design, args.name or design.model.name)
+    for path in emit(design, args.to, folder, name=args.name, precision=args.precision,
+                     latex_sections=sections, extra_files=figures):
         print(path)
     return 0

@@ -110,7 +110,7 @@ def run_simulate(args) -> int:
     from ..analysis.simulation.campaign import prepare, run_campaign
     from ..analysis.simulation.figures import scenario_figure
     from ..analysis.simulation.tables import campaign_csv, format_campaign
-    from ..emit.files import default_folder, prepare_folder, write_atomic
+    from ..emit.files import default_folder, prepare_folder, write_files
     from .sweep import _progress
 
     _check_numbers(args)
@@ -135,11 +135,11 @@ def run_simulate(args) -> int:
         print(f"note: {note}")
     print(format_campaign(campaign, every_point=not args.quiet), end="")
     base = f"{model.name}-simulation"
-    written = [write_atomic(folder / f"{base}.csv", campaign_csv(campaign))]
     title = model.title or model.name
+    files = {f"{base}.csv": campaign_csv(campaign)}  # every file rendered first, then written as one set
     for k in range(len(setup.cases)):
-        fig = scenario_figure(campaign, k, title)
-        written.append(write_atomic(folder / f"{base}-{k + 1}.png", png_bytes(fig)))
+        files[f"{base}-{k + 1}.png"] = png_bytes(scenario_figure(campaign, k, title))
+    written = write_files(folder, files)
     for path in written:
         print(f"wrote {path}")
     print("simulation passed" if campaign.passed else "simulation FAILED: a requirement is not met")

@@ -48,7 +48,8 @@ def derive(model: Model, form: str = "auto") -> Design:
     if not isinstance(model, Model):
         raise ModelError(f"derive needs a Model (from load_model, Model or model_from_matrices), "
                          f"found {type(model).__name__}")
-    stage("derive", f"{model.n_states} states, {model.n_inputs} inputs, {len(model.parameters)} parameters")
+    counts = ((model.n_states, "state"), (model.n_inputs, "input"), (len(model.parameters), "parameter"))
+    stage("derive", ", ".join(f"{n} {word}{'' if n == 1 else 's'}" for n, word in counts))
     if model.sampling is not None:
         from .sampled import derive_sampled
 

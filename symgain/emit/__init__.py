@@ -69,7 +69,12 @@ def render(design: Design, targets, name: str | None = None, precision: str = "d
 
 
 def emit(design: Design, targets, out_dir=".", name: str | None = None,
-         precision: str = "double", latex_sections=None) -> list[Path]:
-    """Write the design as the given targets into ``out_dir``; the written paths."""
+         precision: str = "double", latex_sections=None, extra_files=None) -> list[Path]:
+    """Write the design as the given targets into ``out_dir``; the written paths.
+
+    ``extra_files`` (name -> text or bytes, e.g. the figures of ``latex_sections``) join the
+    same all-or-nothing set.
+    """
     from .files import write_files
-    return write_files(out_dir, render(design, targets, name, precision, latex_sections))
+    texts = render(design, targets, name, precision, latex_sections)
+    return write_files(out_dir, {**texts, **dict(extra_files or {})})

@@ -3,7 +3,10 @@
 For each designed matrix ``int PREFIX_<function>(double p1, ..., double G[ROWS][COLS])``:
 parameters in declaration order, the matrix last (row-major). It returns 0
 on success, ``-k`` when the k-th argument is not finite or breaks the
-declared sign of its parameter, ``k`` when the k-th validity condition fails
+declared sign of its parameter, ``-(n + k)`` (n arguments) when the k-th
+argument lies outside the declared range of its parameter (the design
+envelope; compiling the source with ``-D<PREFIX>_NO_RANGE_CHECKS`` removes
+these tests, see :func:`symgain.emit.common.range_macro`), ``k`` when the k-th validity condition fails
 (rule in :mod:`symgain.emit.common`) and ``n + 1`` (n conditions) when an
 entry comes out not finite; on any failure the matrix is left untouched. Shared
 subexpressions become ``const double`` locals; no dynamic memory. With
@@ -25,6 +28,13 @@ User text (title, meanings, units) is escaped for comments
 'int cart_feedback_gain(double m, double K[1][2]);'
 >>> "value_[0][1] = 2*m;" in source
 True
+>>> start = source.index("#ifndef CART_NO_RANGE_CHECKS")  # m outside [1, 2]: -2, K untouched
+>>> print(source[start:source.index("#endif", start) + 6])
+#ifndef CART_NO_RANGE_CHECKS
+    if (!(m >= 1.0 && m <= 2.0)) {
+        return -2;
+    }
+#endif
 """
 from __future__ import annotations
 
@@ -36,7 +46,8 @@ from sympy.printing.precedence import PRECEDENCE
 from ..design import Design
 from ..errors import OutputError, printable
 from ..model.identifiers import C_RESERVED
-from .common import TOLERANCE, Function, design_functions, failure_rule, mangle, shared_subexpressions
+from .common import (TOLERANCE, Function, design_functions, failure_rule, mangle, range_macro, range_test,
+                     shared_subexpressions)
 from .escape import c_comment
 
 __all__ = ["c_files", "CPrinter", "C_RESERVED", "c_operation_counts"]
@@ -95,7 +106,8 @@ def _signature(fn: Function, prefix: str, names: dict[str, str], ctype: str) -> 
 _SIGN_TEST = {"positive": ">", "nonnegative": ">=", "nonzero": "!="}
 
 
-def _comment(fn: Function, names: dict[str, str], signs: dict[str, str]) -> list[str]:
+def _comment(fn: Function, names: dict[str, str], signs: dict[str, str], ranges: dict | None = None,
+             macro: str = "") -> list[str]:
     rows, cols = fn.shape
     lines = [f"/* {fn.part} {c_comment(fn.key.replace('_', ' '))} {fn.label}: {rows} x {cols}, row-major.",
              " *"]
@@ -116,6 +128,11 @@ def _comment(fn: Function, names: dict[str, str], signs: dict[str, str]) -> list
         sign = signs.get(a, "real")
         need = f"finite and {_SIGN_TEST[sign]} 0" if sign in _SIGN_TEST else "finite"
         lines.append(f" * returns -{k} when {names[a]} is not {need};")
+    ranges = ranges or {}
+    for k, a in enumerate(fn.arguments, start=len(fn.arguments) + 1):
+        if ranges.get(a) is not None:
+            lines.append(f" * returns -{k} when {names[a]} lies outside {_range(ranges[a])} "
+                         f"(unless compiled with {macro});")
     for k, cond in enumerate(fn.conditions, start=1):
         lines.append(f" * returns {k} when {c_comment(sp.sstr(cond))} == 0;")
     for k, cond in enumerate(fn.nonnegative, start=len(fn.conditions) + 1):
@@ -139,7 +156,7 @@ def _renamed(fn: Function, names):
 
 
 def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: bool = True,
-          signs: dict | None = None) -> list[str]:
+          signs: dict | None = None, ranges: dict | None = None, macro: str = "") -> list[str]:
     entries, conditions, definitions, nonnegative = _renamed(fn, names)
     avoid = set(names.values()) | {fn.label, _LOCAL} | {str(sym) for sym, _ in definitions}
     lines = []
@@ -153,6 +170,14 @@ def _body(fn: Function, names, printer: CPrinter, ctype: str, tol: float, cse: b
         if sign in _SIGN_TEST:
             check += f" || !({names[a]} {_SIGN_TEST[sign]} {zero})"
         lines += [f"    if ({check}) {{", f"        return -{k};", "    }"]
+    outside = [(k, range_test(names[a], (ranges or {}).get(a), ctype))
+               for k, a in enumerate(fn.arguments, start=len(fn.arguments) + 1)]
+    outside = [(k, test) for k, test in outside if test is not None]
+    if outside:  # the design envelope; removable at compile time
+        lines.append(f"#ifndef {macro}")
+        for k, test in outside:
+            lines += [f"    if ({test}) {{", f"        return -{k};", "    }"]
+        lines.append("#endif")
     checks = fn.checked_after()
 
     def test(indexes):
@@ -232,6 +257,9 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
              f"{TOLERANCE[precision]:g} * (1 + sum of |terms of f|).",
              " * Name mangling: a parameter whose name is a C keyword, a <math.h> name or the name",
              " * of the matrix argument gets '_p' appended (int -> int_p).",
+             " * Ranges: a parameter outside its declared range (the design envelope) is refused",
+             " * with a negative return code and the matrix untouched; compile the source with",
+             f" * -D{range_macro(prefix)} to evaluate outside the ranges (signs are still checked).",
              " * Gains from a linear model must be validated in simulation and on the machine",
              " * with safe limits; local codes, safety standards and licensed practice take",
              " * precedence. */"]
@@ -246,14 +274,17 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
     header = intro + [f"#ifndef {guard}", f"#define {guard}", ""]
     source = intro + ["#include <math.h>", f'#include "{prefix}.h"', ""]
     signs = {p.name: p.sign for p in model.parameters}
+    ranges = {p.name: p.range for p in model.parameters}
+    no_ranges = range_macro(prefix)
     for fn in functions:
         names = _names(fn, set())
         rows, cols = fn.shape
         macro = f"{prefix}_{fn.name}".upper()
         sig = _signature(fn, prefix, names, ctype)
-        header += _comment(fn, names, signs)
+        header += _comment(fn, names, signs, ranges, no_ranges)
         header += [f"#define {macro}_ROWS {rows}", f"#define {macro}_COLS {cols}", sig + ";", ""]
-        source += [sig, "{"] + _body(fn, names, printer, ctype, TOLERANCE[precision], cse, signs) + ["}", ""]
+        source += [sig, "{"] + _body(fn, names, printer, ctype, TOLERANCE[precision], cse, signs,
+                                         ranges, no_ranges) + ["}", ""]
     if blocker is None:
         h, src = controller_c(design, prefix, ctype, C_RESERVED)
         header += h

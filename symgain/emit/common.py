@@ -34,7 +34,7 @@ from ..design import EXTRA_SYMBOLS, Design
 from ..model.identifiers import PYTHON_KEYWORDS
 
 __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
-           "mangle", "TOLERANCE"]
+           "mangle", "TOLERANCE", "range_macro", "range_test"]
 
 TOLERANCE = {"double": 1e-12, "single": 1e-5}
 
@@ -175,4 +175,31 @@ def mangle(name: str, reserved: set[str]) -> str:
     return name
 
 
-PYTHON_RESERVED = set(PYTHON_KEYWORDS) | {"numpy", "shape", "out", "_fails", "_bad", "_invalid_mask", "on_invalid"}
+PYTHON_RESERVED = set(PYTHON_KEYWORDS) | {"numpy", "shape", "out", "_fails", "_bad", "_invalid_mask", "on_invalid",
+                                              "check_ranges"}
+
+
+def range_macro(prefix: str) -> str:
+    """The macro that, defined when the C source is compiled, removes the range tests.
+
+    >>> range_macro("cart")
+    'CART_NO_RANGE_CHECKS'
+    """
+    return f"{prefix.upper()}_NO_RANGE_CHECKS"
+
+
+_FLOAT_MAX = 3.4028234663852886e38
+
+
+def range_test(name: str, rng, ctype: str) -> str | None:
+    """The C test that is true where ``name`` lies outside ``rng`` (None: no range, or none that a float can break).
+
+    >>> range_test("m", (1, 2), "double"), range_test("m", (-1e300, 2), "float")
+    ('!(m >= 1.0 && m <= 2.0)', '!(m <= 2.0f)')
+    """
+    if rng is None:
+        return None
+    suffix = "f" if ctype == "float" else ""
+    sides = [f"{name} {op} {float(v)!r}{suffix}" for op, v in ((">=", rng[0]), ("<=", rng[1]))
+             if ctype != "float" or abs(float(v)) <= _FLOAT_MAX]  # no float lies beyond that bound
+    return f"!({' && '.join(sides)})" if sides else None

@@ -10,8 +10,10 @@ no dynamic memory, fixed sizes.
 
 Return codes of init and set_parameters: 0 ok; -1 a bad sample period (not
 positive, or not the period the design was made for); -2 a parameter breaks
-its declared sign or range; -3 a validity condition fails (a gain or plant
-function returned nonzero). On an error the controller keeps its previous gains.
+its declared sign or range (the range test is left out when the source is
+compiled with ``-D<PREFIX>_NO_RANGE_CHECKS``); -3 a validity condition fails
+(a gain or plant function returned nonzero). On an error the controller keeps
+its previous gains.
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -31,7 +33,7 @@ import sympy as sp
 
 from ..design import Design
 from ..errors import OutputError
-from .common import mangle
+from .common import mangle, range_macro, range_test
 
 __all__ = ["controller_c"]
 
@@ -87,6 +89,7 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
          f" * {P}_controller_init(ctl, T, parameters...) and {P}_controller_set_parameters(ctl, parameters...)",
          " * return 0, or -1 (bad sample period), -2 (a parameter breaks its declared sign or range),",
          " * -3 (a validity condition fails); the controller then keeps its previous gains.",
+         f" * Compiled with -D{range_macro(P)}, the range tests are left out (signs still hold).",
          f" * {P}_controller_step(ctl, y, r, u): y holds {p if has_L else n} "
          f"{'measured outputs' if has_L else 'states (the full state)'}, r {p} references (NULL: zeros),",
          f" * u receives {m} inputs. Law: u = -K x - Ki q + N r, clipped to [u_min, u_max] and to rate * T per",
@@ -134,10 +137,11 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
             conds.append(f"!({v} >= 0)")
         elif pp.sign == "nonzero":
             conds.append(f"{v} == 0")
-        if pp.range is not None:
-            conds.append(f"!({v} >= {_lit(pp.range[0], t)} && {v} <= {_lit(pp.range[1], t)})")
         if conds:
             s.append(f"    if ({' || '.join(conds)}) {{\n        return -2;\n    }}")
+        outside = range_test(v, pp.range, t)
+        if outside is not None:  # the design envelope, removable at compile time
+            s.append(f"#ifndef {range_macro(P)}\n    if ({outside}) {{\n        return -2;\n    }}\n#endif")
     fargs = ", ".join(names[pp.name] for pp in model.parameters)
     for label, _, _, fn in mats:
         s.append(f"    if ({P}_{fn}({fargs + ', ' if fargs else ''}{label}) != 0) {{\n        return -3;\n    }}")

@@ -118,7 +118,8 @@ def _sample_period(design: Design, names: dict[str, str]):
 
 
 _BODY = '''
-    def __init__(self, {kw}=None, **parameters):
+    def __init__(self, {kw}=None, *, check_ranges=True, **parameters):
+        self.check_ranges = bool(check_ranges)  # False: run outside the declared ranges (signs still hold)
         unknown = sorted(set(parameters) - set(self.PARAMETERS))
         if unknown:
             raise ValueError(f"unknown parameter {{unknown[0]!r}}; expected {{', '.join(self.PARAMETERS)}}")
@@ -155,11 +156,13 @@ _BODY = '''
             if (sign == "positive" and not value > 0 or sign == "nonnegative" and not value >= 0
                     or sign == "nonzero" and value == 0):
                 raise ValueError(f"{{name}} = {{value}} contradicts its declared sign ({{sign}})")
-            if rng is not None and not rng[0] <= value <= rng[1]:
-                raise ValueError(f"{{name}} = {{value}} lies outside its declared range [{{rng[0]}}, {{rng[1]}}]")
+            if self.check_ranges and rng is not None and not rng[0] <= value <= rng[1]:
+                raise ValueError(f"{{name}} = {{value}} lies outside its declared range [{{rng[0]}}, {{rng[1]}}]; "
+                                 "pass check_ranges=False to run outside it")
         m = {{}}
         for key, function in self._MATRICES.items():
-            m[key] = None if function is None else numpy.asarray(function(**values), dtype=numpy.float64)
+            m[key] = None if function is None else numpy.asarray(function(**values, check_ranges=self.check_ranges),
+                                                                  dtype=numpy.float64)
         self.parameters = values
         self.K, self.Ki, self.L, self.N = m["K"], m["Ki"], m["L"], m["N"]
         self.A, self.B, self.C, self.D = m["A"], m["B"], m["C"], m["D"]
@@ -252,6 +255,7 @@ def controller_class(design: Design, printer, names: dict[str, str]) -> list[str
              f'    """The controller of {model.name} that runs at a sample period T ({kind}).',
              "",
              f"    Controller({kw}=..., <parameters as keywords; defaults are the nominal values>);",
+             "    a parameter outside its declared range is refused (ValueError) unless check_ranges=False;",
              "    step(y, r=None) -> u, set_parameters(**changes), reset().",
              "    Law per sample: u = -K x_hat - Ki q + N r, clipped to [u_min, u_max] and to rate * T per",
              f"    sample; integrator q += T (y - r) with anti-windup ({aw['method']}); estimator "

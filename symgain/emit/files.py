@@ -7,7 +7,10 @@ set of files as one: every temporary file is written (and synced) first, and
 only then are they renamed into place; if any write or rename fails, the
 files already replaced get their old contents back and no new file of the
 set stays behind. It renders nothing itself: callers build every text first,
-so a failure while rendering leaves no output at all.
+so a failure while rendering leaves no output at all. The output folder too
+is made only when the first file is written (:func:`prepare_folder` checks it
+without creating it), and a folder made for a set that then fails is removed:
+a refused command leaves no empty folder behind.
 
 >>> import tempfile, pathlib
 >>> folder = pathlib.Path(tempfile.mkdtemp())
@@ -19,6 +22,9 @@ so a failure while rendering leaves no output at all.
 Traceback (most recent call last):
 ...
 symgain.errors.OutputError: cannot create output folder ...
+>>> later = prepare_folder(folder / "new" / "deeper")  # checked, not made
+>>> later.exists(), [p.name for p in write_files(later, {"c.txt": "three"})], later.exists()
+(False, ['c.txt'], True)
 """
 from __future__ import annotations
 
@@ -33,17 +39,53 @@ __all__ = ["write_atomic", "write_files", "prepare_folder", "default_folder"]
 
 
 def prepare_folder(folder) -> Path:
-    """The output folder, created if missing; :class:`OutputError` if it cannot be written."""
+    """The output folder, checked but not created: it is a writable folder, or the nearest
+    existing folder above it is writable (so that it can be made when a file is written).
+
+    :class:`OutputError` if it cannot be written. Checking first lets a command refuse a bad
+    output path before its computation; creating late means a refused command leaves no folder.
+    """
     folder = Path(folder)
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise OutputError(f"cannot create output folder {_shown(folder)}: {exc.strerror or exc}") from None
+    probe = folder
+    while not os.path.lexists(probe) and probe != probe.parent:
+        probe = probe.parent
+    if not os.path.lexists(folder):  # to be made below an existing path
+        if not probe.is_dir():
+            raise OutputError(f"cannot create output folder {_shown(folder)}: {_shown(probe)} is not a folder")
+        if not os.access(probe, os.W_OK | os.X_OK):
+            raise OutputError(f"cannot create output folder {_shown(folder)}: {_shown(probe)} is not writable")
+        return folder
     if not folder.is_dir():
         raise OutputError(f"output path {_shown(folder)} is not a folder")
     if not os.access(folder, os.W_OK | os.X_OK):
         raise OutputError(f"output folder {_shown(folder)} is not writable")
     return folder
+
+
+def _make_folder(folder: Path) -> list[Path]:
+    """Create the folder (and missing parents); the folders made, deepest first."""
+    made = []
+    probe = folder
+    while not os.path.lexists(probe) and probe != probe.parent:
+        made.append(probe)
+        probe = probe.parent
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        _remove_folders(made)
+        raise OutputError(f"cannot create output folder {_shown(folder)}: {exc.strerror or exc}") from None
+    if not folder.is_dir():
+        raise OutputError(f"output path {_shown(folder)} is not a folder")
+    return made
+
+
+def _remove_folders(made: list[Path]) -> None:
+    """Remove the folders a failed set made (deepest first; only while they are empty)."""
+    for path in made:
+        try:
+            path.rmdir()
+        except OSError:
+            return
 
 
 def _temporary(path: Path, text: str | bytes) -> str:
@@ -84,6 +126,7 @@ def write_atomic(path, text: str | bytes) -> Path:
 def write_files(folder, texts: dict[str, str | bytes], prepare: bool = True) -> list[Path]:
     """Write every ``name -> text`` into ``folder`` as one set (all or nothing); the paths in order."""
     folder = prepare_folder(folder) if prepare else Path(folder)
+    made = _make_folder(folder)  # only now, when there is something to write
     targets = [folder / name for name in texts]
     temporaries: list[str] = []
     backups: list[tuple[Path, str | None]] = []  # (target, saved old file or None if it was new)
@@ -119,6 +162,7 @@ def write_files(folder, texts: dict[str, str | bytes], prepare: bool = True) -> 
         for tmp in temporaries:
             if os.path.exists(tmp):
                 os.unlink(tmp)
+        _remove_folders(made)
         if isinstance(exc, OutputError):
             raise
         raise OutputError(f"cannot write {_shown(folder)}: {exc.strerror or exc}") from None

@@ -31,7 +31,7 @@ import sympy as sp
 from ..analysis.evaluate import GainEvaluator
 from ..analysis.schedule import GridAxis, Schedule
 from ..model.identifiers import C_RESERVED
-from .common import mangle
+from .common import mangle, range_macro, range_test
 from .escape import c_comment
 
 __all__ = ["InterpolationError", "interpolate", "interpolation_errors", "lookup_table_c", "REFINE"]
@@ -129,7 +129,9 @@ def lookup_table_c(schedule: Schedule, errors: dict[str, InterpolationError] | N
         lines.append(f" *   {pname} = {value:g} {c_comment(units[pname])} (nominal, fixed)")
     lines += [f" * Interpolation: {kind}. Outside the grid the nearest edge is used and the",
               " * function returns 1. Grid points where a validity condition fails hold NAN;",
-              " * a query that needs one of them returns -1 and NAN gains.",
+              " * a query that needs one of them returns -1 and NAN gains. A query outside a",
+              " * parameter's declared range returns -2 and NAN gains (the design envelope;",
+              f" * compile with -D{range_macro(name)} to leave that test out).",
               f" * Worst interpolation error against the exact formulas, measured on a grid",
               f" * {refine} times finer than this table (absolute; relative to the largest |gain|):"]
     for e in entries:
@@ -189,13 +191,25 @@ def _function(schedule: Schedule, name: str, up: str) -> list[str]:
     axes = schedule.axes
     arg = {a.name: mangle(a.name, _LOCALS) for a in axes}
     params = ", ".join(f"double {arg[a.name]}" for a in axes)
+    ranges = {p.name: p.range for p in schedule.design.model.parameters}
+    tests = [(arg[a.name], ranges.get(a.name), range_test(arg[a.name], ranges.get(a.name), "double"))
+             for a in axes]
+    tests = [(n, r, t) for n, r, t in tests if t is not None]
+    envelope = "".join(f"; -2 when {n} lies outside its declared range [{r[0]:g}, {r[1]:g}]" for n, r, _ in tests)
+    if tests:
+        envelope += f" (unless compiled with -D{range_macro(name)})"
     out = [f"/* Interpolated gains at ({', '.join(arg[a.name] for a in axes)}); returns 0, 1 (clamped) or -1 "
-           "(invalid, or an argument is not finite). */",
+           f"(invalid, or an argument is not finite){envelope}; NAN gains on a negative return. */",
            f"int {name}_schedule({params}, double gains[{up}_N_GAINS])", "{",
            "    int status = 0, k;"]
     finite = " || ".join(f"!isfinite({arg[a.name]})" for a in axes)
     out += [f"    if ({finite}) {{", f"        for (k = 0; k < {up}_N_GAINS; k++) gains[k] = NAN;",
             "        return -1;", "    }"]
+    if tests:  # the design envelope, removable at compile time
+        out.append(f"#ifndef {range_macro(name)}")
+        out += [f"    if ({' || '.join(t for _, _, t in tests)}) {{",
+                f"        for (k = 0; k < {up}_N_GAINS; k++) gains[k] = NAN;", "        return -2;", "    }"]
+        out.append("#endif")
     letters = "ij"
     for a, ix in zip(axes, letters):
         n = f"{up}_N_{a.name.upper()}"

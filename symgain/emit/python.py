@@ -11,8 +11,14 @@ module is the one vectorized evaluator of the project, see
 are computed once (``sympy.cse``). Names that are Python keywords get ``_p``
 appended. Every argument must be a finite number with the declared sign of
 its parameter (``ValueError`` otherwise, naming the argument), and a result
-that is not finite raises ``ValueError`` instead of being returned. User
-text (title, meanings, units) is escaped (:mod:`symgain.emit.escape`).
+that is not finite raises ``ValueError`` instead of being returned. A value
+outside the declared range of its parameter (the design envelope) raises
+``ValueError`` naming the parameter, the value and the range; pass
+``check_ranges=False`` to evaluate outside the envelope on purpose (the signs
+are still enforced). With ``on_invalid="nan"`` out-of-range points get NaN
+gains like any other invalid point, and numpy's divide/invalid warnings are
+silenced inside the function (the NaN gains are the report). User text
+(title, meanings, units) is escaped (:mod:`symgain.emit.escape`).
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -25,8 +31,18 @@ text (title, meanings, units) is escaped (:mod:`symgain.emit.escape`).
 >>> exec(python_module(derive(model)), namespace)
 >>> namespace["feedback_gain"](b=[1.0, 2.0]).tolist()
 [[[1.0, 2.0]], [[0.5, 1.0]]]
->>> namespace["feedback_gain"](b=[1.0, 0.0], on_invalid="nan").tolist()  # valid when b != 0
+>>> namespace["feedback_gain"](b=[1.0, 0.0], on_invalid="nan").tolist()  # b = 0: outside [1, 2]
 [[[1.0, 2.0]], [[nan, nan]]]
+>>> namespace["feedback_gain"](b=3.0)
+Traceback (most recent call last):
+...
+ValueError: feedback_gain: b = 3.0 lies outside its declared range [1, 2] (the design envelope) at these parameter values; pass check_ranges=False to evaluate outside it
+>>> namespace["feedback_gain"](b=4.0, check_ranges=False).tolist()
+[[0.25, 0.5]]
+>>> namespace["feedback_gain"](b=0.0, check_ranges=False)  # valid when b != 0
+Traceback (most recent call last):
+...
+ValueError: feedback_gain: condition b != 0 fails at these parameter values
 """
 from __future__ import annotations
 
@@ -82,6 +98,9 @@ def _docstring(design: Design, fn: Function, names: dict[str, str]) -> list[str]
                      f"{_SIGN_WORDS[signs.get(name, 'real')]}, range {_range_text(rng)}")
     if fn.branch is not None:
         lines += ["", f"Solution branch {fn.branch} of the design (several branches reach the target)."]
+    if any(rng for *_, rng in fn.meanings):
+        lines += ["", "Outside a declared range (the design envelope): ValueError, or NaN gains with",
+                  "on_invalid=\"nan\"; check_ranges=False evaluates there (the signs still hold)."]
     lines += ["", "Valid when (otherwise ValueError):"]
     if fn.conditions or fn.nonnegative:
         lines += [f"    {python_text(sp.sstr(c))} != 0" for c in fn.conditions]
@@ -100,17 +119,24 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
                                            *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
-    body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\"):"]
+    body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\", check_ranges=True):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
     signs = {p.name: p.sign for p in design.model.parameters}
     for a in fn.arguments:
         body.append(f"    {names[a]} = _argument({names[a]}, {names[a]!r}, {fn.name!r})")
     body.append(f"    shape = numpy.broadcast_shapes({', '.join(names[a] + '.shape' for a in fn.arguments)})")
-    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails", "_bad", "on_invalid"}
+    avoid = set(names.values()) | {"shape", "out", "numpy", "_fails", "_bad", "on_invalid", "check_ranges"}
     body.append("    _bad = _invalid_mask(on_invalid, shape)")
+    head = len(body)  # from here on, the body runs inside _quiet(on_invalid)
+    ranges = {p.name: p.range for p in design.model.parameters}
     for a in fn.arguments:
         body.append(f"    _bad = _sign({names[a]}, {names[a]!r}, {fn.name!r}, {signs.get(a, 'real')!r}, "
                     "shape, _bad)")
+    for a in fn.arguments:
+        if ranges.get(a) is not None:
+            low, high = (float(v) for v in ranges[a])
+            body.append(f"    _bad = _range({names[a]}, {names[a]!r}, {fn.name!r}, {low!r}, {high!r}, "
+                        "check_ranges, shape, _bad)")
     definitions = [(sym, expr.xreplace(rename)) for sym, expr in fn.definitions]
     checks = fn.checked_after()
 
@@ -157,7 +183,7 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
         if index in done:
             body.append(f"    del {', '.join(sorted(done[index]))}")
     body.append(f"    return _finite(out, {fn.name!r}, _bad" + (", infinite=True)" if fn.infinite_ok else ")"))
-    return body
+    return body[:head] + ["    with _quiet(_bad):"] + ["    " + line for line in body[head:]]
 
 
 _HELPER = '''
@@ -190,6 +216,27 @@ def _sign(value, name, function, sign, shape, mask):
         raise ValueError(f"{function}: {name} must be a finite {word} number (declared sign), "
                          f"fails {_where(bad)}")
     return None
+
+
+def _range(value, name, function, low, high, check, shape, mask):
+    """Raise ValueError where the argument lies outside its declared range [low, high]
+    (unless check is False), or, with a mask, add those points to it."""
+    if not check:
+        return mask
+    bad = numpy.broadcast_to(~((value >= low) & (value <= high)), shape)
+    if mask is not None:
+        return mask | bad
+    if bad.any():
+        shown = value if value.ndim == 0 else numpy.broadcast_to(value, shape)[tuple(numpy.argwhere(bad)[0])]
+        raise ValueError(f"{function}: {name} = {float(shown)!r} lies outside its declared range "
+                         f"[{low:g}, {high:g}] (the design envelope) {_where(bad)}; "
+                         "pass check_ranges=False to evaluate outside it")
+    return None
+
+
+def _quiet(mask):
+    """Inside the function with on_invalid="nan" (a mask): no numpy warnings, the NaN gains are the report."""
+    return numpy.errstate(all="ignore") if mask is not None else numpy.errstate()
 
 
 def _finite(out, function, mask, infinite=False):
@@ -245,6 +292,8 @@ def python_module(design: Design) -> str:
             "",
             "Generated by symgain from the model's symbolic design; needs numpy only.",
             "Functions: " + ", ".join(f.name for f in fns) + ".",
+            "Each refuses a parameter outside its declared sign or range (the design envelope);",
+            "check_ranges=False evaluates outside the ranges on purpose.",
             (CONTROLLER_DOC + "." if blocker is None else f"No Controller class: {blocker}."),
             "Gains from a linear model must be validated in simulation and on the machine with safe limits;",
             "local codes, safety standards and licensed practice take precedence.",

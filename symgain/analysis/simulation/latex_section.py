@@ -98,20 +98,19 @@ class _Row:
         self.name, self.signal = name, signal
 
 
-def simulation_for_report(design, folder, name: str, *, jobs=None) -> tuple[list[str], list]:
-    """Run the model's simulation (its [simulation] table or the defaults), write the figures into
-    ``folder`` as ``<name>-simulation-<k>.png``; the report lines and the written paths."""
+def simulation_for_report(design, name: str, *, jobs=None) -> tuple[list[str], dict[str, bytes]]:
+    """Run the model's simulation (its [simulation] table or the defaults); the report lines and
+    the figures as ``<name>-simulation-<k>.png`` -> PNG bytes, to be written with the report
+    (one set: nothing is written here)."""
     import tempfile
 
-    from ...emit.files import prepare_folder, write_atomic
     from ...emit.plots import png_bytes
     from .campaign import prepare, run_campaign
     from .figures import scenario_figure
 
-    folder = prepare_folder(folder)
     with tempfile.TemporaryDirectory(prefix="symgain-controller-") as module_folder:
         campaign = run_campaign(prepare(design, module_folder), jobs=jobs)
     title = design.model.title or design.model.name
-    paths = [write_atomic(folder / f"{name}-simulation-{k + 1}.png", png_bytes(scenario_figure(campaign, k, title)))
-             for k in range(len(campaign.setup.cases))]
-    return simulation_section(campaign, [p.name for p in paths]), paths
+    figures = {f"{name}-simulation-{k + 1}.png": png_bytes(scenario_figure(campaign, k, title))
+               for k in range(len(campaign.setup.cases))}
+    return simulation_section(campaign, list(figures)), figures
