@@ -35,7 +35,7 @@ from .common import mangle
 
 __all__ = ["controller_c"]
 
-_LOCALS = {"ctl", "T", "y", "r", "u", "rc", "i", "j", "x", "uw", "e", "push", "freeze", "step_limit", "xn",
+_LOCALS = {"ctl", "T", "y", "r", "u", "un", "rc", "i", "j", "x", "uw", "e", "push", "freeze", "step_limit", "xn",
            "innov", "K", "Ki", "L", "N", "A", "B", "C", "D", "U", "TT"}
 
 
@@ -64,7 +64,9 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     P = prefix
     t = ctype
     fabs = "fabsf" if t == "float" else "fabs"
-    mats = [("K", m, n, "integral_gain" if has_I else "feedback_gain")]
+    delay = discrete and model.sampling.compute_delay
+    nk = n + m if delay else n  # columns of K: the state, and u[k-1] with the computation delay
+    mats = [("K", m, nk, "integral_gain" if has_I else "feedback_gain")]
     if has_I:
         mats.append(("Ki", m, p, "integral_integral_gain"))
     if has_L:
@@ -92,6 +94,9 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
          f" * u receives {m} inputs. Law: u = -K x - Ki q + N r, clipped to [u_min, u_max] and to rate * T per",
          f" * sample; q += T (y - r) with anti-windup ({aw['method']}); estimator "
          f"({'current' if current else 'prediction'} form) advanced with the applied u."]
+    if delay:
+        h += [" * Computation delay: u receives the input computed at the previous sample (apply it now);",
+              " * the one computed from this y is held in u_held, K acts on [x; u_held]."]
     if fixed is not None:
         h.append(f" * The design was made for T = {fixed!r} s; init refuses any other period.")
     if period_param is not None:
@@ -109,6 +114,8 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
         h.append(f"    {t} q[{p}];")
     if has_L:
         h.append(f"    {t} x_hat[{n}];")
+    if delay:
+        h.append(f"    {t} u_held[{m}];")
     h += [f"    {t} u_last[{m}];", f"    int saturated[{m}];", f"}} {P}_controller_t;", "",
           init_sig + ";", set_sig + ";", reset_sig + ";", step_sig + ";", ""]
     s = [init_sig, "{"]
@@ -157,19 +164,26 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
         s.append(f"    ctl->tracking_time = {tt};")
     s += ["    return 0;", "}", ""]
     s += [reset_sig, "{", "    int i;"]
-    s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = 0;\n        ctl->saturated[i] = 0;\n    }}")
+    s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = 0;\n        ctl->saturated[i] = 0;\n"
+             + ("        ctl->u_held[i] = 0;\n" if delay else "") + "    }")
     if has_I:
         s.append(f"    for (i = 0; i < {p}; ++i) {{\n        ctl->q[i] = 0;\n    }}")
     if has_L:
         s.append(f"    for (i = 0; i < {n}; ++i) {{\n        ctl->x_hat[i] = 0;\n    }}")
     s += ["}", ""]
-    s += _step(step_sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back)
+    s += _step(step_sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay)
     return h, s
 
 
-def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list[str]:
+def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay=False) -> list[str]:
     zero = "0.0f" if t == "float" else "0.0"
-    s = [sig, "{", f"    {t} x[{n}];", f"    {t} uw[{m}];", "    int i, j;"]
+    nk = n + m if delay else n
+    cu = "un" if delay else "u"  # the input computed now
+    au = "ctl->u_held" if delay else "u"  # the input that acts during this sample
+    base = "ctl->u_held" if delay else "ctl->u_last"  # the rate limit's previous value
+    s = [sig, "{", f"    {t} x[{nk}];", f"    {t} uw[{m}];", "    int i, j;"]
+    if delay:
+        s.append(f"    {t} un[{m}];")
     if p and (has_I or has_L):
         s.append(f"    {t} e[{p}];")
     if p and (has_I or has_N):
@@ -188,19 +202,21 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
               "    }"]
     src = "ctl->x_hat[i]" if has_L else "y[i]"
     s.append(f"    for (i = 0; i < {n}; ++i) {{\n        x[i] = {src};\n    }}")
+    if delay:
+        s.append(f"    for (i = 0; i < {m}; ++i) {{\n        x[{n} + i] = ctl->u_held[i];\n    }}")
     s += [f"    for (i = 0; i < {m}; ++i) {{", f"        {t} v = {zero};",
           f"        {t} lo, hi;",
-          f"        for (j = 0; j < {n}; ++j) {{\n            v -= ctl->K[i][j] * x[j];\n        }}"]
+          f"        for (j = 0; j < {nk}; ++j) {{\n            v -= ctl->K[i][j] * x[j];\n        }}"]
     if has_I:
         s.append(f"        for (j = 0; j < {p}; ++j) {{\n            v -= ctl->Ki[i][j] * ctl->q[j];\n        }}")
     if has_N:
         s.append(f"        for (j = 0; j < {p}; ++j) {{\n            v += ctl->N[i][j] * rr[j];\n        }}")
     s += ["        uw[i] = v;",
           "        v = v < ctl->u_min[i] ? ctl->u_min[i] : (v > ctl->u_max[i] ? ctl->u_max[i] : v);",
-          "        lo = ctl->u_last[i] - ctl->rate[i] * ctl->T;",
-          "        hi = ctl->u_last[i] + ctl->rate[i] * ctl->T;",
+          f"        lo = {base}[i] - ctl->rate[i] * ctl->T;",
+          f"        hi = {base}[i] + ctl->rate[i] * ctl->T;",
           "        v = v < lo ? lo : (v > hi ? hi : v);",
-          "        u[i] = v;",
+          f"        {cu}[i] = v;",
           "        ctl->saturated[i] = v != uw[i];",
           "    }"]
     if has_I:
@@ -209,16 +225,16 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
         else:
             s += [f"    for (i = 0; i < {p}; ++i) {{", "        e[i] = -rr[i];",
                   f"        for (j = 0; j < {n}; ++j) {{\n            e[i] += ctl->C[i][j] * y[j];\n        }}",
-                  f"        for (j = 0; j < {m}; ++j) {{\n            e[i] += ctl->D[i][j] * u[j];\n        }}",
+                  f"        for (j = 0; j < {m}; ++j) {{\n            e[i] += ctl->D[i][j] * {au}[j];\n        }}",
                   "    }"]
         if back:
-            s.append("    ctl->q[0] += ctl->T * (e[0] - (u[0] - uw[0]) / (ctl->Ki[0][0] * ctl->tracking_time));")
+            s.append(f"    ctl->q[0] += ctl->T * (e[0] - ({cu}[0] - uw[0]) / (ctl->Ki[0][0] * ctl->tracking_time));")
         else:
             s += ["    {", "        int freeze = 0;",
                   f"        for (i = 0; i < {m}; ++i) {{",
                   f"            {t} push = {zero};",
                   f"            for (j = 0; j < {p}; ++j) {{\n                push -= ctl->Ki[i][j] * (ctl->T * e[j]);\n            }}",
-                  "            if (ctl->saturated[i] && ((uw[i] > u[i] && push > 0) || (uw[i] < u[i] && push < 0))) {",
+                  f"            if (ctl->saturated[i] && ((uw[i] > {cu}[i] && push > 0) || (uw[i] < {cu}[i] && push < 0))) {{",
                   "                freeze = 1;", "            }", "        }",
                   "        if (!freeze) {",
                   f"            for (j = 0; j < {p}; ++j) {{\n                ctl->q[j] += ctl->T * e[j];\n            }}",
@@ -226,12 +242,12 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
     if has_L:
         s += [f"    for (i = 0; i < {n}; ++i) {{", f"        {t} v = {zero};",
               f"        for (j = 0; j < {n}; ++j) {{\n            v += ctl->A[i][j] * ctl->x_hat[j];\n        }}",
-              f"        for (j = 0; j < {m}; ++j) {{\n            v += ctl->B[i][j] * u[j];\n        }}",
+              f"        for (j = 0; j < {m}; ++j) {{\n            v += ctl->B[i][j] * {au}[j];\n        }}",
               "        xn[i] = v;", "    }"]
         if not current:
             s += [f"    for (j = 0; j < {p}; ++j) {{", "        e[j] = y[j];",
                   f"        for (i = 0; i < {n}; ++i) {{\n            e[j] -= ctl->C[j][i] * ctl->x_hat[i];\n        }}",
-                  f"        for (i = 0; i < {m}; ++i) {{\n            e[j] -= ctl->D[j][i] * u[i];\n        }}",
+                  f"        for (i = 0; i < {m}; ++i) {{\n            e[j] -= ctl->D[j][i] * {au}[i];\n        }}",
                   "    }",
                   f"    for (i = 0; i < {n}; ++i) {{",
                   f"        for (j = 0; j < {p}; ++j) {{\n            xn[i] += ctl->L[i][j] * e[j];\n        }}",
@@ -240,6 +256,8 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
             s.append(f"    for (i = 0; i < {n}; ++i) {{\n        ctl->x_hat[i] = xn[i];\n    }}")
         else:  # forward Euler: xn holds A x_hat + B u + L (y - C x_hat - D u)
             s.append(f"    for (i = 0; i < {n}; ++i) {{\n        ctl->x_hat[i] += ctl->T * xn[i];\n    }}")
+    if delay:  # apply the input computed at the previous sample, hold the new one
+        s.append(f"    for (i = 0; i < {m}; ++i) {{\n        u[i] = ctl->u_held[i];\n        ctl->u_held[i] = un[i];\n    }}")
     s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = u[i];\n    }}")
     s += ["    return 0;", "}"]
     return s
