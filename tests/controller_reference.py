@@ -16,16 +16,21 @@ from symgain.emit.json import design_to_dict
 
 
 def numeric(strings, values):
-    """A JSON matrix (list of rows of strings) at numeric parameter values, in float64.
+    """A JSON matrix (list of rows of strings) at numeric parameter values, rounded to float64.
 
-    Evaluated in double precision on purpose: the emitted code does the same arithmetic on the
-    same formulas, so differences measure the controller logic, not the formulas' round-off
-    (which the emitter tests bound separately against 40-digit values).
+    Evaluated by mpmath at 40 digits and then rounded: the emitted code prints its own forms of
+    the formulas (short-period stable forms, symgain.emit.stable_forms), so the reference is the
+    correctly rounded value of the JSON formulas, and differences measure the controller logic
+    (the emitter tests bound the formulas' round-off separately against 40-digit values).
     """
+    import mpmath
+
     names = {k: sp.Symbol(k) for k in values}
     exprs = [[sp.sympify(e, locals=names) for e in row] for row in strings]
-    f = sp.lambdify(list(names.values()), exprs, modules="numpy")
-    return np.array(f(*[float(v) for v in values.values()]), dtype=float)
+    f = sp.lambdify(list(names.values()), exprs, modules="mpmath")
+    with mpmath.workdps(40):
+        out = f(*[mpmath.mpf(float(v)) for v in values.values()])
+        return np.array([[float(mpmath.re(v)) for v in row] for row in out], dtype=float)
 
 
 def plant(model, values):

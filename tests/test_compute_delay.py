@@ -178,7 +178,7 @@ def test_mirror_integral_with_delay_and_delay_pole(tmp_path):
     ref = scipy.signal.place_poles(Pi, Gi, [0.6, 0.65, 0.7, 0.2]).gain_matrix
     np.testing.assert_allclose(full, ref, rtol=1e-7)
     ctl = _module(design, tmp_path).Controller()
-    us, ys, uc = simulate(design, {"J": J, "k": k}, T, 400, [0.0, 0.0], np.array([0.012]), ctl)
+    us, ys, uc = simulate(design, {"J": J, "k": k}, T, 400, [-0.01, 0.0], np.array([0.012]), ctl)
     assert np.max(np.abs(uc - us)) < 1e-9 * np.max(np.abs(us))
     assert np.sum(np.abs(us) >= 0.015 - 1e-15) >= 2  # saturates, clamped integrator
     assert abs(ys[-1, 0] - 0.012) < 1e-7

@@ -134,7 +134,7 @@ def _renamed(fn: Function, names):
     symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)],
                                            *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
-    return ([e.xreplace(rename) for e in fn.matrix], [c.xreplace(rename) for c in fn.conditions],
+    return ([e.xreplace(rename) for e in fn.printed()], [c.xreplace(rename) for c in fn.printed_conditions()],
             [(sym, e.xreplace(rename)) for sym, e in fn.definitions], [c.xreplace(rename) for c in fn.nonnegative])
 
 
@@ -246,6 +246,9 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
     header = intro + [f"#ifndef {guard}", f"#define {guard}", ""]
     source = intro + ["#include <math.h>", f'#include "{prefix}.h"', ""]
     signs = {p.name: p.sign for p in model.parameters}
+    from .stable_forms import c_helpers, remainders
+
+    source += c_helpers(remainders(e for fn in functions for e in fn.printed()), printer, ctype)
     for fn in functions:
         names = _names(fn, set())
         rows, cols = fn.shape
