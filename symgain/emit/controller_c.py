@@ -3,7 +3,8 @@
 The same law per sample as the Python ``Controller``
 (:mod:`symgain.emit.controller_python`): current-form estimate (when asked),
 u = -K x - Ki q + N r, saturation to [min, max] and to rate * T per sample,
-integrator with anti-windup, estimator update with the applied u (forward
+integrator with anti-windup (back-calculation per input channel through the
+pseudo-inverse of Ki, computed at init by Gauss-Jordan elimination), estimator update with the applied u (forward
 Euler at T for a continuous design). Every matrix comes from a function of
 the same file (``<prefix>_feedback_gain``, ``<prefix>_plant_Phi``, ...). C99,
 no dynamic memory, fixed sizes.
@@ -11,7 +12,8 @@ no dynamic memory, fixed sizes.
 Return codes of init and set_parameters: 0 ok; -1 a bad sample period (not
 positive, or not the period the design was made for); -2 a parameter breaks
 its declared sign or range; -3 a validity condition fails (a gain or plant
-function returned nonzero). On an error the controller keeps its previous gains.
+function returned nonzero, or, with back-calculation, Ki has not full column rank). On an
+error the controller keeps its previous gains.
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -30,13 +32,13 @@ from __future__ import annotations
 import sympy as sp
 
 from ..design import Design
-from ..errors import OutputError
 from .common import mangle
 
 __all__ = ["controller_c"]
 
 _LOCALS = {"ctl", "T", "y", "r", "u", "un", "rc", "i", "j", "x", "uw", "e", "push", "freeze", "step_limit", "xn",
-           "innov", "K", "Ki", "L", "N", "A", "B", "C", "D", "U", "TT"}
+           "innov", "K", "Ki", "L", "N", "A", "B", "C", "D", "U", "TT", "KiP", "G", "big", "k", "piv", "swap",
+           "f", "corr"}
 
 
 def _lit(value: float, ctype: str) -> str:
@@ -59,8 +61,6 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     current = discrete and has_L and model.sampling.estimator_form == "current"
     aw = model.anti_windup or {"method": "clamp", "tracking_time": None}
     back = has_I and aw["method"] == "back_calculation"
-    if back and not (m == 1 and p == 1):
-        raise OutputError("the C controller does back-calculation anti-windup for one input and one output only")
     P = prefix
     t = ctype
     fabs = "fabsf" if t == "float" else "fabs"
@@ -111,6 +111,8 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
             h.append(f"    {t} {label}[{r_}][{c_}];")
     if has_I:
         h.append(f"    {t} tracking_time;")
+        if back:
+            h.append(f"    {t} Ki_pinv[{p}][{m}];  /* pseudo-inverse of Ki: (Ki^T Ki)^-1 Ki^T */")
         h.append(f"    {t} q[{p}];")
     if has_L:
         h.append(f"    {t} x_hat[{n}];")
@@ -148,6 +150,8 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     fargs = ", ".join(names[pp.name] for pp in model.parameters)
     for label, _, _, fn in mats:
         s.append(f"    if ({P}_{fn}({fargs + ', ' if fargs else ''}{label}) != 0) {{\n        return -3;\n    }}")
+    if back:
+        s += _pinv_lines(m, p, t)
     for pp in model.parameters:
         s.append(f"    ctl->{names[pp.name]} = {names[pp.name]};")
     for label, r_, c_, _ in mats:
@@ -162,6 +166,9 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     if has_I:
         tt = "TT[0][0]" if any(x[0] == "TT" for x in mats) else f"{_lit(10.0, t)} * ctl->T"
         s.append(f"    ctl->tracking_time = {tt};")
+        if back:
+            s.append(f"    for (i = 0; i < {p}; ++i) {{\n        for (j = 0; j < {m}; ++j) {{\n"
+                     "            ctl->Ki_pinv[i][j] = KiP[i][j];\n        }\n    }")
     s += ["    return 0;", "}", ""]
     s += [reset_sig, "{", "    int i;"]
     s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = 0;\n        ctl->saturated[i] = 0;\n"
@@ -173,6 +180,39 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     s += ["}", ""]
     s += _step(step_sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay)
     return h, s
+
+
+def _pinv_lines(m: int, p: int, t: str) -> list[str]:
+    """C lines computing KiP = (Ki^T Ki)^-1 Ki^T (p x m) by Gauss-Jordan elimination with partial
+    pivoting on [Ki^T Ki | I]; -3 when Ki has not full column rank (a pivot below 1e-12 of the
+    largest entry, 1e-6 in single precision)."""
+    fabs = "fabsf" if t == "float" else "fabs"
+    tol = _lit(1e-6 if t == "float" else 1e-12, t)
+    zero = _lit(0.0, t)
+    return [f"    {t} KiP[{p}][{m}];", "    {", f"        {t} G[{p}][{2 * p}];", f"        {t} big = {zero};",
+            "        int k, piv;",
+            f"        for (i = 0; i < {p}; ++i) {{", f"            for (j = 0; j < {p}; ++j) {{",
+            f"                G[i][j] = {zero};",
+            f"                for (k = 0; k < {m}; ++k) {{\n                    G[i][j] += Ki[k][i] * Ki[k][j];\n"
+            "                }",
+            f"                G[i][{p} + j] = i == j ? {_lit(1.0, t)} : {zero};",
+            f"                big = {fabs}(G[i][j]) > big ? {fabs}(G[i][j]) : big;", "            }", "        }",
+            f"        for (j = 0; j < {p}; ++j) {{", "            piv = j;",
+            f"            for (i = j + 1; i < {p}; ++i) {{",
+            f"                piv = {fabs}(G[i][j]) > {fabs}(G[piv][j]) ? i : piv;", "            }",
+            f"            if (!({fabs}(G[piv][j]) > {tol} * big)) {{\n                return -3;\n            }}",
+            f"            for (k = 0; k < {2 * p}; ++k) {{",
+            f"                {t} swap = G[j][k];", "                G[j][k] = G[piv][k];",
+            "                G[piv][k] = swap;", "            }",
+            f"            for (k = {2 * p - 1}; k >= j; --k) {{\n                G[j][k] /= G[j][j];\n            }}",
+            f"            for (i = 0; i < {p}; ++i) {{", "                if (i != j) {",
+            f"                    {t} f = G[i][j];",
+            f"                    for (k = j; k < {2 * p}; ++k) {{\n                        G[i][k] -= f * G[j][k];\n"
+            "                    }", "                }", "            }", "        }",
+            f"        for (i = 0; i < {p}; ++i) {{", f"            for (j = 0; j < {m}; ++j) {{",
+            f"                KiP[i][j] = {zero};",
+            f"                for (k = 0; k < {p}; ++k) {{\n                    KiP[i][j] += G[i][{p} + k] * Ki[j][k];\n"
+            "                }", "            }", "        }", "    }"]
 
 
 def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay=False) -> list[str]:
@@ -228,7 +268,11 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay=F
                   f"        for (j = 0; j < {m}; ++j) {{\n            e[i] += ctl->D[i][j] * {au}[j];\n        }}",
                   "    }"]
         if back:
-            s.append(f"    ctl->q[0] += ctl->T * (e[0] - ({cu}[0] - uw[0]) / (ctl->Ki[0][0] * ctl->tracking_time));")
+            # per input channel: q += T (e - pinv(Ki) (u - u_wanted) / tracking_time)
+            s += [f"    for (i = 0; i < {p}; ++i) {{", f"        {t} corr = {zero};",
+                  f"        for (j = 0; j < {m}; ++j) {{\n            corr += ctl->Ki_pinv[i][j] * ({cu}[j] - uw[j]);\n"
+                  "        }",
+                  "        ctl->q[i] += ctl->T * (e[i] - corr / ctl->tracking_time);", "    }"]
         else:
             s += ["    {", "        int freeze = 0;",
                   f"        for (i = 0; i < {m}; ++i) {{",
