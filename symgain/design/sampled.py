@@ -87,7 +87,7 @@ def delay_z_spec(spec: TargetSpec, order: int, T: sp.Expr, m: int, delay_poles=(
 
     >>> T = sp.Symbol("T", positive=True)
     >>> delay_z_spec(TargetSpec("z_poles", {"z_poles": (0.5,)}), 1, T, 1)[0].polynomial
-    z**2 - 0.5*z
+    z**2 - z/2
     """
     if _full_order(spec, order + m):
         return z_spec(spec, order + m, T)

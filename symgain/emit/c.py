@@ -246,9 +246,9 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
     header = intro + [f"#ifndef {guard}", f"#define {guard}", ""]
     source = intro + ["#include <math.h>", f'#include "{prefix}.h"', ""]
     signs = {p.name: p.sign for p in model.parameters}
-    from .stable_forms import c_helpers, remainders
+    from .stable_forms import printed_helpers
 
-    source += c_helpers(remainders(e for fn in functions for e in fn.printed()), printer, ctype)
+    source += printed_helpers((e for fn in functions for e in fn.printed()), printer, "c", ctype)
     for fn in functions:
         names = _names(fn, set())
         rows, cols = fn.shape

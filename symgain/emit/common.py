@@ -33,7 +33,7 @@ import sympy as sp
 from ..design import Design
 from ..model.identifiers import PYTHON_KEYWORDS
 
-__all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
+__all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions", "discriminants",
            "mangle", "TOLERANCE"]
 
 TOLERANCE = {"double": 1e-12, "single": 1e-5}
@@ -144,6 +144,8 @@ def design_functions(design: Design) -> list[Function]:
                                     b.valid_when, b.index, ()))
         for key, name, label, matrix, valid, branch, definitions in entries:
             conditions, nonnegative = _split_conditions(valid)
+            if getattr(design, "sampled", None) is not None:
+                nonnegative += discriminants(matrix, nonnegative)
             taken.add(name)
             matrix = sp.ImmutableMatrix(matrix)
             used = in_definitions if definitions else set()
@@ -155,6 +157,26 @@ def design_functions(design: Design) -> list[Function]:
                                 conditions, meanings + fm, definitions=definitions, nonnegative=nonnegative,
                                 branch=branch, period=None if definitions else sample_period(design)))
     return out
+
+
+def discriminants(matrix, known=()) -> tuple:
+    """The D of every sqrt(D) in a sampled-data matrix that may turn negative, as f >= 0 conditions.
+
+    The exact hold writes the eigenvalues of a quadratic factor with sqrt(D); where D < 0 the
+    formulas as written are not real (NaN in numpy and C) although the matrices are, so the
+    emitted code refuses there with the condition named (D >= 0: the eigenvalues are real).
+
+    >>> c, k = sp.symbols("c k", positive=True)
+    >>> discriminants(sp.Matrix([[sp.exp(sp.sqrt(c**2 - 4*k))]]))
+    (c**2 - 4*k,)
+    """
+    found = []
+    for e in sp.ImmutableMatrix(matrix):
+        for a in e.atoms(sp.Pow):
+            if a.exp.is_Rational and a.exp.q == 2 and a.base.free_symbols and a.base.is_nonnegative is not True \
+                    and a.base not in found and a.base not in known:
+                found.append(a.base)
+    return tuple(sorted(found, key=sp.default_sort_key))
 
 
 def sample_period(design: Design):

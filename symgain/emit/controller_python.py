@@ -32,7 +32,7 @@ from __future__ import annotations
 import sympy as sp
 
 from ..design import Design
-from .common import PYTHON_RESERVED, Function, mangle, sample_period
+from .common import PYTHON_RESERVED, Function, discriminants, mangle, sample_period
 
 __all__ = ["controller_functions", "controller_class", "controller_blocker", "CONTROLLER_DOC"]
 
@@ -67,7 +67,8 @@ def controller_functions(design: Design) -> list[Function]:
 
     def add(name, part, label, matrix, conds=(), infinite_ok=False):
         out.append(Function(name, part, "matrix", label, sp.ImmutableMatrix(matrix), params,
-                            _condition_exprs(conds), meanings, infinite_ok=infinite_ok, period=sample_period(design)))
+                            _condition_exprs(conds), meanings, infinite_ok=infinite_ok, period=sample_period(design),
+                            nonnegative=discriminants(matrix) if design.sampled is not None else ()))
 
     if design.sampled is not None:
         add("plant_Phi", "sampled plant", "Phi", design.sampled.Phi, design.sampled.valid_when)

@@ -249,9 +249,9 @@ def python_module(design: Design) -> str:
             "Gains from a linear model must be validated in simulation and on the machine with safe limits;",
             "local codes, safety standards and licensed practice take precedence.",
             '"""', "import numpy", "", f"__all__ = {[f.name for f in fns] + (['Controller'] if blocker is None else [])!r}", _HELPER]
-    from .stable_forms import python_helpers, remainders
+    from .stable_forms import printed_helpers
 
-    head += python_helpers(remainders(e for fn in fns for e in fn.printed()), printer)
+    head += printed_helpers((e for fn in fns for e in fn.printed()), printer, "python")
     for fn in fns:
         head += [""] + _function(design, fn, printer) + [""]
     if blocker is None:

@@ -22,10 +22,10 @@ one digit). The emitters print them as small helper functions, one per kind and 
 (``exprem2_`` ... in C, static; ``_exprem2`` ... in Python).
 
 >>> T, c, m = sp.symbols("T c m", positive=True)
->>> stable_form(1 - sp.exp(-T*c/m), T)
-T*c*exprem(-T*c/m, 1)/m
->>> stable_form(T*c/m - 1 + sp.exp(-T*c/m), T)
-T**2*c**2*exprem(-T*c/m, 2)/m**2
+>>> stable_form(1 - sp.exp(-T*c/m), T)  # (exp(x) - 1) / exp(x) with x = T c/m
+T*c*ExpRemainder(T*c/m, 1)/(m*(T*c*ExpRemainder(T*c/m, 1)/m + 1))
+>>> stable_form(T*c/m - 1 + sp.exp(-T*c/m), T)  # second order: every term carries T^2
+T**2*c**2*((T*c/m - 1)*ExpRemainder(T*c/m, 2) + 1)/(m*(T*c*ExpRemainder(T*c/m, 1) + m))
 """
 from __future__ import annotations
 
@@ -34,7 +34,7 @@ import functools
 import sympy as sp
 
 __all__ = ["stable_form", "stable_condition", "ExpRemainder", "CosRemainder", "SinRemainder", "remainders",
-           "python_helpers", "c_helpers"]
+           "python_helpers", "c_helpers", "printed_helpers"]
 
 MAX_ORDER = 6  # highest Taylor order tried before the expression is left as written
 
@@ -157,7 +157,7 @@ def stable_form(expr: sp.Expr, T: sp.Symbol) -> sp.Expr:
 
     >>> T = sp.Symbol("T", positive=True)
     >>> stable_form(sp.cos(T) - 1, T)
-    -T**2*cosrem(T, 1)
+    T**2*CosRemainder(T, 1)
     """
     if not isinstance(expr, sp.Expr) or not expr.has(T) or not expr.atoms(sp.exp, sp.cos, sp.sin):
         return expr
@@ -251,3 +251,11 @@ def c_helpers(used, printer, ctype: str) -> list[str]:
                 f"    if ({fabs}(x) < 2) {{", f"        const {ctype} s = {var};", f"        return {horner};", "    }",
                 f"    return {printer.doprint(direct)};", "}", ""]
     return out
+
+
+def printed_helpers(exprs, printer, language: str, ctype: str = "double") -> list[str]:
+    """Every helper function (Taylor remainders) that the printed expressions call."""
+    used = remainders(list(exprs))
+    if language == "python":
+        return python_helpers(used, printer)
+    return c_helpers(used, printer, ctype)
