@@ -3,7 +3,8 @@
 Built only from the design's JSON (gain formulas as strings), the model's continuous A, B,
 C and scipy.signal.cont2discrete for the sampled plant (common practice: the exact
 zero-order hold), with the control law of the shared controller contract written out here
-a second time, plainly, as a recursion.
+a second time, plainly, as a recursion. With ``compute_delay`` the input computed from y[k]
+acts on the plant from k+1 on (the recorded u is the one acting during each sample).
 """
 from __future__ import annotations
 
@@ -15,16 +16,21 @@ from symgain.emit.json import design_to_dict
 
 
 def numeric(strings, values):
-    """A JSON matrix (list of rows of strings) at numeric parameter values, in float64.
+    """A JSON matrix (list of rows of strings) at numeric parameter values, rounded to float64.
 
-    Evaluated in double precision on purpose: the emitted code does the same arithmetic on the
-    same formulas, so differences measure the controller logic, not the formulas' round-off
-    (which the emitter tests bound separately against 40-digit values).
+    Evaluated by mpmath at 40 digits and then rounded: the emitted code prints its own forms of
+    the formulas (short-period stable forms, symgain.emit.stable_forms), so the reference is the
+    correctly rounded value of the JSON formulas, and differences measure the controller logic
+    (the emitter tests bound the formulas' round-off separately against 40-digit values).
     """
+    import mpmath
+
     names = {k: sp.Symbol(k) for k in values}
     exprs = [[sp.sympify(e, locals=names) for e in row] for row in strings]
-    f = sp.lambdify(list(names.values()), exprs, modules="numpy")
-    return np.array(f(*[float(v) for v in values.values()]), dtype=float)
+    f = sp.lambdify(list(names.values()), exprs, modules="mpmath")
+    with mpmath.workdps(40):
+        out = f(*[mpmath.mpf(float(v)) for v in values.values()])
+        return np.array([[float(mpmath.re(v)) for v in row] for row in out], dtype=float)
 
 
 def plant(model, values):
@@ -64,6 +70,7 @@ def simulate(design, values, T, steps, x0, r, controller=None):
     N = numeric(data["feedforward"]["gain"], values) if "feedforward" in data else None
     discrete = design.sampled is not None
     current = discrete and model.sampling.estimator_form == "current"
+    delay = discrete and model.sampling.compute_delay  # u[k] from y[k] acts from k+1 on
     if discrete:  # the controller's model of the plant: the design's Phi, Gamma (scipy's pair runs the plant)
         Pc, Gc = numeric(data["sampled"]["Phi"], values), numeric(data["sampled"]["Gamma"], values)
         assert np.max(np.abs(Pc - ad)) < 1e-8 and np.max(np.abs(Gc - bd)) < 1e-8 * max(1.0, np.max(np.abs(bd)))
@@ -73,6 +80,7 @@ def simulate(design, values, T, steps, x0, r, controller=None):
     xh = np.zeros(n)
     q = np.zeros(p)
     u_last = np.zeros(m)
+    v = np.zeros(m)  # with the delay: the input that acts during the current sample
     tt = None
     if integral and model.anti_windup and model.anti_windup.get("tracking_time") is not None:
         tt = float(sp.sympify(model.anti_windup["tracking_time"]).xreplace(
@@ -85,13 +93,16 @@ def simulate(design, values, T, steps, x0, r, controller=None):
         if L is not None and current:  # current form: correct with this sample's y first
             xh = xh + L @ (y - C @ xh)
         xv = xh if L is not None else x
+        if delay:
+            xv = np.concatenate([xv, v])
         uw = -K @ xv
         if integral:
             uw = uw - Ki @ q
         if N is not None:
             uw = uw + N @ r
         u = np.minimum(np.maximum(uw, lo), hi)
-        u = np.minimum(np.maximum(u, u_last - rate * T), u_last + rate * T)
+        base = v if delay else u_last
+        u = np.minimum(np.maximum(u, base - rate * T), base + rate * T)
         if controller is not None:
             uc.append(controller.step(meas, r))
         if integral:
@@ -103,17 +114,19 @@ def simulate(design, values, T, steps, x0, r, controller=None):
                 push = -Ki @ (T * e)
                 if not np.any((sat & (uw > u) & (push > 0)) | (sat & (uw < u) & (push < 0))):
                     q = q + T * e
+        acting = v if delay else u
         if L is not None:
             if current:
-                xh = Pc @ xh + Gc @ u
+                xh = Pc @ xh + Gc @ acting
             elif discrete:
-                xh = Pc @ xh + Gc @ u + L @ (y - C @ xh)
+                xh = Pc @ xh + Gc @ acting + L @ (y - C @ xh)
             else:
-                xh = xh + T * (A @ xh + B @ u + L @ (y - C @ xh))
-        us.append(u)
+                xh = xh + T * (A @ xh + B @ acting + L @ (y - C @ xh))
+        us.append(acting)
         ys.append(y)
-        u_last = u
-        x = ad @ x + bd @ u
+        u_last = acting
+        x = ad @ x + bd @ acting
+        v = u
     return np.array(us), np.array(ys), (np.array(uc) if controller is not None else None)
 
 

@@ -101,13 +101,11 @@ def functions_of(design):
     return design_functions(design)
 
 
-# Known, not fixed: sampled-data closed forms lose digits at short sample periods. In
-# sampled_stage, K involves 1 - exp(-T c/m) with T c/m down to 1e-4 over the declared ranges,
-# and its numerator cancels to second order: the double-precision formulas agree with the
-# 40-digit values only to ~1e-8 and the single-precision ones not at all (~20 %). The cure
-# (a delta-operator form with expm1-type functions) is not written yet; these cases are expected
-# to fail (strict: the mark must be removed once they pass).
-SHORT_PERIOD_CANCELLATION = {"sampled_stage"}
+# Fixed: sampled-data closed forms lost digits at short sample periods (1 - exp(-T c/m) with
+# T c/m down to 1e-4 in sampled_stage, cancelling to third order). The emitters now print the
+# short-period stable forms of symgain.emit.stable_forms; tests/test_stable_forms.py measures them
+# at T = 1e-4. No example is expected to fail any more.
+SHORT_PERIOD_CANCELLATION: set[str] = set()
 
 
 def mark_known_cancellation(request, path: str) -> None:

@@ -9,7 +9,9 @@ parameter):
 * each gain against ``scipy.signal.place_poles`` on scipy's sampled plant
   (distinct target poles and a unique gain only);
 * the closed-loop characteristic polynomial in z (of Phi - Gamma K,
-  Phi - L C or Phi - L C Phi, the augmented integral loop) against the target.
+  Phi - L C or Phi - L C Phi, the augmented integral loop) against the target;
+  with ``compute_delay`` the gains are checked on the pair with the delay
+  states, [[Phi, Gamma], [0, 0]], [[0], [I]], built here from scipy's Phi, Gamma.
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -36,7 +38,7 @@ from ..design.validity import holds_at
 from ..model import Z
 from .check_points import CheckReport, PointResult, _distinct, _normalized_error, _real, sample_points, steady_state_error
 
-__all__ = ["check_sampled_design", "scipy_sampled_plant"]
+__all__ = ["check_sampled_design", "scipy_sampled_plant", "loop_pair"]
 
 _SCIPY_METHOD = {"zoh": "zoh", "series": "zoh", "euler": "euler", "tustin": "bilinear"}
 
@@ -48,37 +50,50 @@ def scipy_sampled_plant(A, B, T: float, method: str = "zoh"):
     return ad, bd
 
 
-def _closed(part: str, Pd, Gd, C, D, gain, T: float, form: str):
-    n = Pd.shape[0]
-    if part == "feedback":
-        return Pd - Gd @ gain
+def loop_pair(part: str, Pd, Gd, C, D, T: float, delay: bool = False):
+    """The numeric pair whose gain the part places: (Phi, Gamma), with the delay states and/or
+    the integrator states appended (integral action: q[k+1] = q[k] + T (y - r)).
+
+    >>> Pa, Ga = loop_pair("feedback", np.eye(1), np.ones((1, 1)), None, None, 0.1, delay=True)
+    >>> Pa.tolist(), Ga.tolist()
+    ([[1.0, 1.0], [0.0, 0.0]], [[0.0], [1.0]])
+    """
+    n, m = Gd.shape
+    if delay:
+        Pd = np.block([[Pd, Gd], [np.zeros((m, n + m))]])
+        Gd = np.vstack([np.zeros((n, m)), np.eye(m)])
+    if part != "integral":
+        return Pd, Gd
+    p = C.shape[0]
+    D = np.zeros((p, m)) if D is None else D
+    Cx = np.hstack([C, D]) if delay else C
+    Pa = np.block([[Pd, np.zeros((Pd.shape[0], p))], [T * Cx, np.eye(p)]])
+    Ga = np.vstack([Gd, np.zeros((p, m)) if delay else T * D])
+    return Pa, Ga
+
+
+def _closed(part: str, Pd, Gd, C, D, gain, T: float, form: str, delay: bool = False):
     if part == "estimator":
         return Pd - gain @ (C @ Pd if form == "current" else C)
-    p = C.shape[0]
-    D = np.zeros((p, Gd.shape[1])) if D is None else D
-    Pa = np.block([[Pd, np.zeros((n, p))], [T * C, np.eye(p)]])
-    Ga = np.vstack([Gd, T * D])
+    Pa, Ga = loop_pair(part, Pd, Gd, C, D, T, delay)
     return Pa - Ga @ gain
 
 
-def _reference(part: str, Pd, Gd, C, D, roots, T: float, form: str):
+def _reference(part: str, Pd, Gd, C, D, roots, T: float, form: str, delay: bool = False):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        if part == "feedback":
-            return scipy.signal.place_poles(Pd, Gd, roots, rtol=1e-13, maxiter=200).gain_matrix
         if part == "estimator":
             Cx = C @ Pd if form == "current" else C
             return scipy.signal.place_poles(Pd.T, Cx.T, roots, rtol=1e-13, maxiter=200).gain_matrix.T
-        n, p = Pd.shape[0], C.shape[0]
-        D = np.zeros((p, Gd.shape[1])) if D is None else D
-        Pa = np.block([[Pd, np.zeros((n, p))], [T * C, np.eye(p)]])
-        return scipy.signal.place_poles(Pa, np.vstack([Gd, T * D]), roots, rtol=1e-13, maxiter=200).gain_matrix
+        Pa, Ga = loop_pair(part, Pd, Gd, C, D, T, delay)
+        return scipy.signal.place_poles(Pa, Ga, roots, rtol=1e-13, maxiter=200).gain_matrix
 
 
 def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tolerance: float = 1e-6) -> CheckReport:
     """Check the sampled plant and every part of a sampled-data design at sampled points."""
     model, sampled = design.model, design.sampled
     form = model.sampling.estimator_form
+    delay = model.sampling.compute_delay
     symbols = [p.symbol for p in model.parameters]
     ev = lambda expr: sp.lambdify(symbols, expr, modules="numpy")  # noqa: E731
     f_A, f_B, f_T = ev(model.A), ev(model.B), ev(sampled.period)
@@ -128,11 +143,11 @@ def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tole
                 f"Phi, Gamma differ from scipy by {err:.1e}" if bad else ""))
         for part in parts:
             report.points[part.part].append(_check_point(part, f_gain[part.part], f_K, idx, point, args, values,
-                                                         ad, bd, C, D, T, form, tolerance))
+                                                         ad, bd, C, D, T, form, tolerance, delay))
     return report
 
 
-def _check_point(part, fns, f_K, idx, point, args, values, ad, bd, C, D, T, form, tol) -> PointResult:
+def _check_point(part, fns, f_K, idx, point, args, values, ad, bd, C, D, T, form, tol, delay) -> PointResult:
     f_full, f_target, unique = fns
     failed = holds_at(part.valid_when, values)
     if failed:
@@ -143,22 +158,24 @@ def _check_point(part, fns, f_K, idx, point, args, values, ad, bd, C, D, T, form
         return PointResult(idx, point, "fail", None, None, "gain is not finite and real here")
     if part.part == "feedforward":
         K = _real(f_K(*args))
-        n = ad.shape[0]
+        Pa, Ga = loop_pair("feedback", ad, bd, C, D, T, delay)
+        Dz = np.zeros((C.shape[0], bd.shape[1])) if D is None else D
+        Ca, Da = (np.hstack([C, Dz]), None) if delay else (C, D)
         try:
-            err = steady_state_error(ad - np.eye(n), bd, C, D, K, gain)
+            err = steady_state_error(Pa - np.eye(Pa.shape[0]), Ga, Ca, Da, K, gain)
         except (np.linalg.LinAlgError, TypeError):
             err = float("inf")
         bad = not err <= tol
         return PointResult(idx, point, "fail" if bad else "ok", None, err,
                            f"steady-state gain from r to y differs from I by {err:.1e}" if bad else "")
     target = np.array(f_target(*args), dtype=complex).real
-    closed = _closed(part.part, ad, bd, C, D, gain, T, form)
+    closed = _closed(part.part, ad, bd, C, D, gain, T, form, delay)
     cl_err = _normalized_error(np.poly(closed), target)
     gain_err = None
     roots = np.roots(target)
     if unique and _distinct(roots):
         try:
-            ref = _reference(part.part, ad, bd, C, D, roots, T, form)
+            ref = _reference(part.part, ad, bd, C, D, roots, T, form, delay)
             gain_err = float(np.max(np.abs(ref - gain)) / max(np.max(np.abs(ref)), 1e-300))
         except ValueError:
             gain_err = None

@@ -16,6 +16,18 @@ on (Phi^T, (C Phi)^T)). Integral action: q[k+1] = q[k] + T (y - r), the
 augmented pair [[Phi, 0], [T C, I]], [[Gamma], [T D]]. Feedforward: the
 steady state x = Phi x + Gamma (N r - K x) gives N = (C (I - Phi + Gamma K)^-1 Gamma)^-1.
 
+Computation delay (``compute_delay = true``): u[k], computed from y[k], reaches the
+plant at k+1, so the plant sees v[k] = u[k-1]. The delayed inputs join the state,
+x_a = [x; v], with the pair Phi_a = [[Phi, Gamma], [0, 0]], Gamma_a = [[0], [I]]
+(common practice, e.g. Franklin, Powell and Workman's treatment of a full-period
+delay, from memory), and every gain is placed on that pair: K_a = [K, K_v],
+u[k] = -K x[k] - K_v v[k] (integral action: [[Phi, Gamma, 0], [0, 0, 0],
+[T C, T D, I]], [[0], [I], [0]]). The target gives the plant's poles as before;
+the m extra poles are ``delay_poles`` (default: every one at z = 0, where the delay
+alone puts them). A deadbeat target, or z poles / a polynomial in z of the full
+order, covers the delay poles too. The estimator is unchanged: it estimates x
+with the applied input v.
+
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.model.sampling_keys import Sampling
@@ -32,13 +44,14 @@ from dataclasses import replace
 
 import sympy as sp
 
-from ..errors import DesignError
+from ..errors import DesignError, ModelError
 from ..model import S, Z, Model, TargetSpec
 from .discrete_targets import resolve_z_target
+from .targets import Target
 from .discretize import sampled_plant
 from .validity import nonzero_conditions
 
-__all__ = ["derive_sampled", "z_spec"]
+__all__ = ["derive_sampled", "z_spec", "delay_z_spec", "delay_plant"]
 
 _TITLES = {  # the sampled-data wording of each step of the continuous machinery
     "closed_loop_matrix": "closed-loop matrix Phi - Gamma {g}",
@@ -56,6 +69,62 @@ def z_spec(spec: TargetSpec, order: int, T: sp.Expr):
     keep = {k: v for k, v in spec.values.items() if k in ("pattern", "input_direction", "output_direction")}
     return target, TargetSpec("polynomial", {"polynomial": target.polynomial.xreplace({Z: S}), **keep},
                               spec.where)
+
+
+def _full_order(spec: TargetSpec, order: int) -> bool:
+    """True when a z-only target already gives the poles of the delay states too."""
+    if spec.kind == "deadbeat":
+        return True
+    if spec.kind == "z_poles":
+        return len(tuple(spec.values["z_poles"])) == order
+    if spec.kind == "polynomial" and Z in sp.sympify(spec.values["polynomial"]).free_symbols:
+        return sp.degree(sp.expand(spec.values["polynomial"]), Z) == order
+    return False
+
+
+def delay_z_spec(spec: TargetSpec, order: int, T: sp.Expr, m: int, delay_poles=()):
+    """z_spec for a loop with m delay states: the target of ``order`` poles times the delay factors.
+
+    >>> T = sp.Symbol("T", positive=True)
+    >>> delay_z_spec(TargetSpec("z_poles", {"z_poles": (0.5,)}), 1, T, 1)[0].polynomial
+    z**2 - z/2
+    """
+    if _full_order(spec, order + m):
+        return z_spec(spec, order + m, T)
+    base = resolve_z_target(spec, order, T)
+    extra = tuple(delay_poles) or (sp.Integer(0),) * m
+    if len(extra) != m:
+        raise ModelError(f"delay_poles holds {len(extra)} poles but the delay adds {m} (one per input)")
+    poly = sp.expand(base.polynomial * sp.Mul(*[Z - d for d in extra]))
+    shown = ", ".join(sp.sstr(d) for d in extra)
+    note = f"computation delay: {m} extra pole(s) at z = {shown} (the delay states)"
+    target = Target(poly, None if base.poles is None else (*base.poles, *extra),
+                    f"{base.description}; delay poles at z = {shown}", (*base.notes, note))
+    keep = {k: v for k, v in spec.values.items() if k in ("pattern", "input_direction", "output_direction")}
+    return target, TargetSpec("polynomial", {"polynomial": poly.xreplace({Z: S}), **keep}, spec.where)
+
+
+def delay_plant(Phi, Gamma):
+    """(Phi_a, Gamma_a) of x_a = [x; u[k-1]]: one sample of computation delay.
+
+    >>> Pa, Ga = delay_plant(sp.Matrix([[1]]), sp.Matrix([[2]]))
+    >>> Pa.tolist(), Ga.tolist()
+    ([[1, 2], [0, 0]], [[0], [1]])
+    """
+    n, m = Phi.rows, Gamma.cols
+    Pa = sp.Matrix.vstack(sp.Matrix.hstack(Phi, Gamma), sp.zeros(m, n + m))
+    Ga = sp.Matrix.vstack(sp.zeros(n, m), sp.eye(m))
+    return Pa, Ga
+
+
+def _target_spec(model: Model, spec: TargetSpec, order: int, T):
+    if model.sampling.compute_delay:
+        return delay_z_spec(spec, order, T, model.n_inputs, model.sampling.delay_poles)
+    return z_spec(spec, order, T)
+
+
+def _delay_states(model: Model) -> tuple[str, ...]:
+    return tuple(f"{u}_prev" for u in model.inputs) if model.sampling.compute_delay else ()
 
 
 def _to_z(value):
@@ -135,8 +204,17 @@ def _integral(model: Model, sampled, avoid, T):
     D = sp.zeros(p, m) if model.D is None else sp.Matrix(model.D)
     if p > m:
         raise DesignError(f"integral action on {p} outputs needs at least {p} inputs", where=spec.where)
-    Pa = sp.Matrix.vstack(sp.Matrix.hstack(Phi, sp.zeros(n, p)), sp.Matrix.hstack(T * C, sp.eye(p)))
-    Ga = sp.Matrix.vstack(Gamma, T * D)
+    delay = model.sampling.compute_delay
+    if delay:  # [[Phi, Gamma, 0], [0, 0, 0], [T C, T D, I]], [[0], [I], [0]]
+        Pa = sp.Matrix.vstack(sp.Matrix.hstack(Phi, Gamma, sp.zeros(n, p)), sp.zeros(m, n + m + p),
+                              sp.Matrix.hstack(T * C, T * D, sp.eye(p)))
+        Ga = sp.Matrix.vstack(sp.zeros(n, m), sp.eye(m), sp.zeros(p, m))
+        how = ("augmented sampled plant with the computation delay, state [x; u[k-1]; q]: "
+               "[[Phi, Gamma, 0], [0, 0, 0], [T C, T D, I]], [[0], [I], [0]]")
+    else:
+        Pa = sp.Matrix.vstack(sp.Matrix.hstack(Phi, sp.zeros(n, p)), sp.Matrix.hstack(T * C, sp.eye(p)))
+        Ga = sp.Matrix.vstack(Gamma, T * D)
+        how = "augmented sampled plant: [[Phi, 0], [T C, I]], [[Gamma], [T D]] (q[k+1] = q[k] + T (y - r))"
     zconds = ()
     if p == m:
         zdet = sp.factor(sp.Matrix.vstack(sp.Matrix.hstack(Phi - sp.eye(n), Gamma),
@@ -145,18 +223,20 @@ def _integral(model: Model, sampled, avoid, T):
             raise DesignError("the sampled plant has a zero at z = 1 (det [[Phi - I, Gamma], [C, D]] = 0): it would "
                               "cancel the integrator", where=spec.where)
         zconds = nonzero_conditions([tidy_trig(zdet)])
-    target, sspec = z_spec(spec, n + p, T)
-    states = (*model.states, *(f"q_{y}" for y in model.outputs))
+    target, sspec = _target_spec(model, spec, n + p, T)
+    states = (*model.states, *_delay_states(model), *(f"q_{y}" for y in model.outputs))
     full = _single_or_several(Pa, Ga, sspec, model, "integral", model.inputs, states, avoid)
     full = _relabel(full, target, sampled, "K_a")
     gain = sp.Matrix(full.gain)
     valid = tuple(dict.fromkeys((*full.valid_when, *zconds)))
-    steps = [Step("augmented_plant", "augmented sampled plant: [[Phi, 0], [T C, I]], [[Gamma], [T D]] "
-                  "(q[k+1] = q[k] + T (y - r))", (sp.ImmutableMatrix(Pa), sp.ImmutableMatrix(Ga)))]
+    steps = [Step("augmented_plant", how, (sp.ImmutableMatrix(Pa), sp.ImmutableMatrix(Ga)))]
     steps += [Step("valid_when", st.title, valid) if st.name == "valid_when" else st for st in full.steps]
-    return replace(full, gain=sp.ImmutableMatrix(gain[:, :n]), valid_when=valid, steps=tuple(steps),
-                   notes=("control law u = -K x - Ki q with q[k+1] = q[k] + T (y - r)", *full.notes),
-                   extra={**full.extra, "integral_gain": sp.ImmutableMatrix(gain[:, n:])})
+    nk = n + m if delay else n
+    law = ("control law u[k] = -K [x[k]; u[k-1]] - Ki q[k], applied at k+1" if delay else
+           "control law u = -K x - Ki q") + " with q[k+1] = q[k] + T (y - r)"
+    return replace(full, gain=sp.ImmutableMatrix(gain[:, :nk]), valid_when=valid, steps=tuple(steps),
+                   notes=(law, *full.notes),
+                   extra={**full.extra, "integral_gain": sp.ImmutableMatrix(gain[:, nk:])})
 
 
 def _estimator(model: Model, sampled, avoid, T, feedback):
@@ -187,9 +267,11 @@ def derive_sampled(model: Model):
     sampling = model.sampling
     T = sampling.period
     where = None
-    if sampling.compute_delay:
-        raise DesignError("compute_delay = true (one sample of computation delay) is not supported yet")
     sampled = sampled_plant(model.A, model.B, T, sampling.method, where)
+    delay = sampling.compute_delay
+    Pf, Gf = sp.Matrix(sampled.Phi), sp.Matrix(sampled.Gamma)
+    if delay:
+        Pf, Gf = delay_plant(Pf, Gf)
     avoid = set(model.symbols)
     step = Step("sampled_plant", f"sampled plant ({sampled.method}): x[k+1] = Phi x[k] + Gamma u[k]",
                 (sampled.Phi, sampled.Gamma))
@@ -198,18 +280,31 @@ def derive_sampled(model: Model):
         spec = model.feedback
         if model.pattern is not None and "pattern" not in spec.values:
             spec = TargetSpec(spec.kind, {**spec.values, "pattern": model.pattern}, spec.where)
-        target, sspec = z_spec(spec, model.n_states, T)
-        part = _single_or_several(sp.Matrix(sampled.Phi), sp.Matrix(sampled.Gamma), sspec, model, "feedback",
-                                  model.inputs, model.states, avoid)
+        target, sspec = _target_spec(model, spec, model.n_states, T)
+        part = _single_or_several(Pf, Gf, sspec, model, "feedback", model.inputs,
+                                  (*model.states, *_delay_states(model)), avoid)
         feedback = _relabel(part, target, sampled, "K")
-        feedback = replace(feedback, steps=(step, *feedback.steps))
+        steps = (step,)
+        if delay:
+            steps += (Step("augmented_plant", "plant with one sample of computation delay, state [x; u[k-1]]: "
+                           "[[Phi, Gamma], [0, 0]], [[0], [I]]", (sp.ImmutableMatrix(Pf), sp.ImmutableMatrix(Gf))),)
+            feedback = replace(feedback, notes=("control law u[k] = -K [x[k]; u[k-1]], applied at k+1 "
+                                                "(one sample of computation delay)", *feedback.notes))
+        feedback = replace(feedback, steps=(*steps, *feedback.steps))
     if model.estimator is not None:
         estimator = _estimator(model, sampled, avoid, T, feedback)
     if model.integral is not None:
         integral = _integral(model, sampled, avoid, T)
         integral = replace(integral, steps=(step, *integral.steps))
     if model.feedforward:
-        shifted = replace(model, A=sp.Matrix(sampled.Phi) - sp.eye(model.n_states), B=sampled.Gamma, sampling=None)
+        if delay:  # the steady state of the delayed loop: y = C x + D u[k-1], with [x; u[k-1]] the state
+            D = sp.zeros(model.n_outputs, model.n_inputs) if model.D is None else sp.Matrix(model.D)
+            shifted = replace(model, states=(*model.states, *_delay_states(model)), A=Pf - sp.eye(Pf.rows), B=Gf,
+                              C=sp.Matrix.hstack(sp.Matrix(model.C), D) if model.C is not None else None,
+                              D=None, sampling=None, feedback=None, estimator=None, integral=None)
+        else:
+            shifted = replace(model, A=sp.Matrix(sampled.Phi) - sp.eye(model.n_states), B=sampled.Gamma,
+                              sampling=None)
         feedforward = design_feedforward(shifted, feedback, integral)
         feedforward = replace(feedforward, notes=("sampled steady state: the formula with A replaced by Phi - I "
                                                   "and B by Gamma", *feedforward.notes))

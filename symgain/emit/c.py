@@ -151,7 +151,7 @@ def _renamed(fn: Function, names):
     symbols = fn.matrix.free_symbols.union(*[c.free_symbols for c in (*fn.conditions, *fn.nonnegative)],
                                            *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
-    return ([e.xreplace(rename) for e in fn.matrix], [c.xreplace(rename) for c in fn.conditions],
+    return ([e.xreplace(rename) for e in fn.printed()], [c.xreplace(rename) for c in fn.printed_conditions()],
             [(sym, e.xreplace(rename)) for sym, e in fn.definitions], [c.xreplace(rename) for c in fn.nonnegative])
 
 
@@ -276,6 +276,9 @@ def c_files(design: Design, prefix: str | None = None, precision: str = "double"
     signs = {p.name: p.sign for p in model.parameters}
     ranges = {p.name: p.range for p in model.parameters}
     no_ranges = range_macro(prefix)
+    from .stable_forms import printed_helpers
+
+    source += printed_helpers((e for fn in functions for e in fn.printed()), printer, "c", ctype)
     for fn in functions:
         names = _names(fn, set())
         rows, cols = fn.shape

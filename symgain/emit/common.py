@@ -33,7 +33,7 @@ import sympy as sp
 from ..design import EXTRA_SYMBOLS, Design
 from ..model.identifiers import PYTHON_KEYWORDS
 
-__all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions",
+__all__ = ["Function", "design_functions", "failure_rule", "shared_subexpressions", "discriminants",
            "mangle", "TOLERANCE", "range_macro", "range_test"]
 
 TOLERANCE = {"double": 1e-12, "single": 1e-5}
@@ -57,6 +57,26 @@ class Function:
     nonnegative: tuple[sp.Expr, ...] = ()  # f of each f >= 0 (a solution branch is real there)
     branch: int | None = None  # the solution branch this function holds (several-input designs)
     infinite_ok: bool = False  # entries may be +-inf (absent input limits); NaN is still refused
+    period: sp.Symbol | None = None  # sample period of a sampled-data design: entries printed in stable form
+
+    def printed(self) -> list:
+        """The entries as the emitters print them: short-period stable forms when there is a period
+        (:mod:`symgain.emit.stable_forms`; the same values), otherwise the entries as designed."""
+        if self.period is None:
+            return list(self.matrix)
+        from .stable_forms import stable_form
+
+        return [stable_form(e, self.period) for e in self.matrix]
+
+    def printed_conditions(self) -> list:
+        """The f of each condition f != 0 as the emitters test it: at short periods in stable form with
+        its positive factors (powers of T, ...) divided out (the same condition; the round-off zero
+        test then sees a quantity of its natural size, not one that vanishes with T)."""
+        if self.period is None:
+            return list(self.conditions)
+        from .stable_forms import stable_condition
+
+        return [stable_condition(c, self.period) for c in self.conditions]
 
     def checked_after(self) -> dict[int, list[int]]:
         """Definition index -> indexes of the conditions to test right after it (compact form).
@@ -125,6 +145,8 @@ def design_functions(design: Design) -> list[Function]:
                                     EXTRA_SYMBOLS.get(key, key), value, b.valid_when, b.index, ()))
         for key, name, label, matrix, valid, branch, definitions in entries:
             conditions, nonnegative = _split_conditions(valid)
+            if getattr(design, "sampled", None) is not None:
+                nonnegative += discriminants(matrix, nonnegative)
             taken.add(name)
             matrix = sp.ImmutableMatrix(matrix)
             used = in_definitions if definitions else set()
@@ -134,8 +156,36 @@ def design_functions(design: Design) -> list[Function]:
             fm = tuple((str(s), "free gain left undetermined by the target", "", None) for s in free)
             out.append(Function(name, part.part, key, label, matrix, tuple(params) + tuple(map(str, free)),
                                 conditions, meanings + fm, definitions=definitions, nonnegative=nonnegative,
-                                branch=branch))
+                                branch=branch, period=None if definitions else sample_period(design)))
     return out
+
+
+def discriminants(matrix, known=()) -> tuple:
+    """The D of every sqrt(D) in a sampled-data matrix that may turn negative, as f >= 0 conditions.
+
+    The exact hold writes the eigenvalues of a quadratic factor with sqrt(D); where D < 0 the
+    formulas as written are not real (NaN in numpy and C) although the matrices are, so the
+    emitted code refuses there with the condition named (D >= 0: the eigenvalues are real).
+
+    >>> c, k = sp.symbols("c k", positive=True)
+    >>> discriminants(sp.Matrix([[sp.exp(sp.sqrt(c**2 - 4*k))]]))
+    (c**2 - 4*k,)
+    """
+    found = []
+    for e in sp.ImmutableMatrix(matrix):
+        for a in e.atoms(sp.Pow):
+            if a.exp.is_Rational and a.exp.q == 2 and a.base.free_symbols and a.base.is_nonnegative is not True \
+                    and a.base not in found and a.base not in known:
+                found.append(a.base)
+    return tuple(sorted(found, key=sp.default_sort_key))
+
+
+def sample_period(design: Design):
+    """The sample period symbol of a sampled-data design (None for a numeric period or a continuous design)."""
+    sampled = getattr(design, "sampled", None)
+    if sampled is None or not isinstance(sampled.period, sp.Symbol):
+        return None
+    return sampled.period
 
 
 def failure_rule(expr: sp.Expr, definitions=()) -> tuple[tuple[sp.Expr, ...], tuple[sp.Expr, ...]]:

@@ -3,7 +3,8 @@
 The same law per sample as the Python ``Controller``
 (:mod:`symgain.emit.controller_python`): current-form estimate (when asked),
 u = -K x - Ki q + N r, saturation to [min, max] and to rate * T per sample,
-integrator with anti-windup, estimator update with the applied u (forward
+integrator with anti-windup (back-calculation per input channel through the
+pseudo-inverse of Ki, computed at init by Gauss-Jordan elimination), estimator update with the applied u (forward
 Euler at T for a continuous design). Every matrix comes from a function of
 the same file (``<prefix>_feedback_gain``, ``<prefix>_plant_Phi``, ...). C99,
 no dynamic memory, fixed sizes.
@@ -12,8 +13,8 @@ Return codes of init and set_parameters: 0 ok; -1 a bad sample period (not
 positive, or not the period the design was made for); -2 a parameter breaks
 its declared sign or range (the range test is left out when the source is
 compiled with ``-D<PREFIX>_NO_RANGE_CHECKS``); -3 a validity condition fails
-(a gain or plant function returned nonzero). On an error the controller keeps
-its previous gains.
+(a gain or plant function returned nonzero, or, with back-calculation, Ki has not
+full column rank). On an error the controller keeps its previous gains.
 
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
@@ -37,8 +38,9 @@ from .common import mangle, range_macro, range_test
 
 __all__ = ["controller_c"]
 
-_LOCALS = {"ctl", "T", "y", "r", "u", "rc", "i", "j", "x", "uw", "e", "push", "freeze", "step_limit", "xn",
-           "innov", "K", "Ki", "L", "N", "A", "B", "C", "D", "U", "TT"}
+_LOCALS = {"ctl", "T", "y", "r", "u", "un", "rc", "i", "j", "x", "uw", "e", "push", "freeze", "step_limit", "xn",
+           "innov", "K", "Ki", "L", "N", "A", "B", "C", "D", "U", "TT", "KiP", "G", "big", "k", "piv", "swap",
+           "f", "corr"}
 
 
 def _lit(value: float, ctype: str) -> str:
@@ -61,12 +63,12 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     current = discrete and has_L and model.sampling.estimator_form == "current"
     aw = model.anti_windup or {"method": "clamp", "tracking_time": None}
     back = has_I and aw["method"] == "back_calculation"
-    if back and not (m == 1 and p == 1):
-        raise OutputError("the C controller does back-calculation anti-windup for one input and one output only")
     P = prefix
     t = ctype
     fabs = "fabsf" if t == "float" else "fabs"
-    mats = [("K", m, n, "integral_state_gain" if has_I else "feedback_gain")]
+    delay = discrete and model.sampling.compute_delay
+    nk = n + m if delay else n  # columns of K: the state, and u[k-1] with the computation delay
+    mats = [("K", m, nk, "integral_state_gain" if has_I else "feedback_gain")]
     if has_I:
         mats.append(("Ki", m, p, "integral_gain"))
     if has_L:
@@ -95,6 +97,9 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
          f" * u receives {m} inputs. Law: u = -K x - Ki q + N r, clipped to [u_min, u_max] and to rate * T per",
          f" * sample; q += T (y - r) with anti-windup ({aw['method']}); estimator "
          f"({'current' if current else 'prediction'} form) advanced with the applied u."]
+    if delay:
+        h += [" * Computation delay: u receives the input computed at the previous sample (apply it now);",
+              " * the one computed from this y is held in u_held, K acts on [x; u_held]."]
     if fixed is not None:
         h.append(f" * The design was made for T = {fixed!r} s; init refuses any other period.")
     if period_param is not None:
@@ -109,9 +114,13 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
             h.append(f"    {t} {label}[{r_}][{c_}];")
     if has_I:
         h.append(f"    {t} tracking_time;")
+        if back:
+            h.append(f"    {t} Ki_pinv[{p}][{m}];  /* pseudo-inverse of Ki: (Ki^T Ki)^-1 Ki^T */")
         h.append(f"    {t} q[{p}];")
     if has_L:
         h.append(f"    {t} x_hat[{n}];")
+    if delay:
+        h.append(f"    {t} u_held[{m}];")
     h += [f"    {t} u_last[{m}];", f"    int saturated[{m}];", f"}} {P}_controller_t;", "",
           init_sig + ";", set_sig + ";", reset_sig + ";", step_sig + ";", ""]
     s = [init_sig, "{"]
@@ -145,6 +154,8 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     fargs = ", ".join(names[pp.name] for pp in model.parameters)
     for label, _, _, fn in mats:
         s.append(f"    if ({P}_{fn}({fargs + ', ' if fargs else ''}{label}) != 0) {{\n        return -3;\n    }}")
+    if back:
+        s += _pinv_lines(m, p, t)
     for pp in model.parameters:
         s.append(f"    ctl->{names[pp.name]} = {names[pp.name]};")
     for label, r_, c_, _ in mats:
@@ -159,21 +170,64 @@ def controller_c(design: Design, prefix: str, ctype: str, reserved: set[str]):
     if has_I:
         tt = "TT[0][0]" if any(x[0] == "TT" for x in mats) else f"{_lit(10.0, t)} * ctl->T"
         s.append(f"    ctl->tracking_time = {tt};")
+        if back:
+            s.append(f"    for (i = 0; i < {p}; ++i) {{\n        for (j = 0; j < {m}; ++j) {{\n"
+                     "            ctl->Ki_pinv[i][j] = KiP[i][j];\n        }\n    }")
     s += ["    return 0;", "}", ""]
     s += [reset_sig, "{", "    int i;"]
-    s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = 0;\n        ctl->saturated[i] = 0;\n    }}")
+    s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = 0;\n        ctl->saturated[i] = 0;\n"
+             + ("        ctl->u_held[i] = 0;\n" if delay else "") + "    }")
     if has_I:
         s.append(f"    for (i = 0; i < {p}; ++i) {{\n        ctl->q[i] = 0;\n    }}")
     if has_L:
         s.append(f"    for (i = 0; i < {n}; ++i) {{\n        ctl->x_hat[i] = 0;\n    }}")
     s += ["}", ""]
-    s += _step(step_sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back)
+    s += _step(step_sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay)
     return h, s
 
 
-def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list[str]:
+def _pinv_lines(m: int, p: int, t: str) -> list[str]:
+    """C lines computing KiP = (Ki^T Ki)^-1 Ki^T (p x m) by Gauss-Jordan elimination with partial
+    pivoting on [Ki^T Ki | I]; -3 when Ki has not full column rank (a pivot below 1e-12 of the
+    largest entry, 1e-6 in single precision)."""
+    fabs = "fabsf" if t == "float" else "fabs"
+    tol = _lit(1e-6 if t == "float" else 1e-12, t)
+    zero = _lit(0.0, t)
+    return [f"    {t} KiP[{p}][{m}];", "    {", f"        {t} G[{p}][{2 * p}];", f"        {t} big = {zero};",
+            "        int k, piv;",
+            f"        for (i = 0; i < {p}; ++i) {{", f"            for (j = 0; j < {p}; ++j) {{",
+            f"                G[i][j] = {zero};",
+            f"                for (k = 0; k < {m}; ++k) {{\n                    G[i][j] += Ki[k][i] * Ki[k][j];\n"
+            "                }",
+            f"                G[i][{p} + j] = i == j ? {_lit(1.0, t)} : {zero};",
+            f"                big = {fabs}(G[i][j]) > big ? {fabs}(G[i][j]) : big;", "            }", "        }",
+            f"        for (j = 0; j < {p}; ++j) {{", "            piv = j;",
+            f"            for (i = j + 1; i < {p}; ++i) {{",
+            f"                piv = {fabs}(G[i][j]) > {fabs}(G[piv][j]) ? i : piv;", "            }",
+            f"            if (!({fabs}(G[piv][j]) > {tol} * big)) {{\n                return -3;\n            }}",
+            f"            for (k = 0; k < {2 * p}; ++k) {{",
+            f"                {t} swap = G[j][k];", "                G[j][k] = G[piv][k];",
+            "                G[piv][k] = swap;", "            }",
+            f"            for (k = {2 * p - 1}; k >= j; --k) {{\n                G[j][k] /= G[j][j];\n            }}",
+            f"            for (i = 0; i < {p}; ++i) {{", "                if (i != j) {",
+            f"                    {t} f = G[i][j];",
+            f"                    for (k = j; k < {2 * p}; ++k) {{\n                        G[i][k] -= f * G[j][k];\n"
+            "                    }", "                }", "            }", "        }",
+            f"        for (i = 0; i < {p}; ++i) {{", f"            for (j = 0; j < {m}; ++j) {{",
+            f"                KiP[i][j] = {zero};",
+            f"                for (k = 0; k < {p}; ++k) {{\n                    KiP[i][j] += G[i][{p} + k] * Ki[j][k];\n"
+            "                }", "            }", "        }", "    }"]
+
+
+def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back, delay=False) -> list[str]:
     zero = "0.0f" if t == "float" else "0.0"
-    s = [sig, "{", f"    {t} x[{n}];", f"    {t} uw[{m}];", "    int i, j;"]
+    nk = n + m if delay else n
+    cu = "un" if delay else "u"  # the input computed now
+    au = "ctl->u_held" if delay else "u"  # the input that acts during this sample
+    base = "ctl->u_held" if delay else "ctl->u_last"  # the rate limit's previous value
+    s = [sig, "{", f"    {t} x[{nk}];", f"    {t} uw[{m}];", "    int i, j;"]
+    if delay:
+        s.append(f"    {t} un[{m}];")
     if p and (has_I or has_L):
         s.append(f"    {t} e[{p}];")
     if p and (has_I or has_N):
@@ -192,19 +246,21 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
               "    }"]
     src = "ctl->x_hat[i]" if has_L else "y[i]"
     s.append(f"    for (i = 0; i < {n}; ++i) {{\n        x[i] = {src};\n    }}")
+    if delay:
+        s.append(f"    for (i = 0; i < {m}; ++i) {{\n        x[{n} + i] = ctl->u_held[i];\n    }}")
     s += [f"    for (i = 0; i < {m}; ++i) {{", f"        {t} v = {zero};",
           f"        {t} lo, hi;",
-          f"        for (j = 0; j < {n}; ++j) {{\n            v -= ctl->K[i][j] * x[j];\n        }}"]
+          f"        for (j = 0; j < {nk}; ++j) {{\n            v -= ctl->K[i][j] * x[j];\n        }}"]
     if has_I:
         s.append(f"        for (j = 0; j < {p}; ++j) {{\n            v -= ctl->Ki[i][j] * ctl->q[j];\n        }}")
     if has_N:
         s.append(f"        for (j = 0; j < {p}; ++j) {{\n            v += ctl->N[i][j] * rr[j];\n        }}")
     s += ["        uw[i] = v;",
           "        v = v < ctl->u_min[i] ? ctl->u_min[i] : (v > ctl->u_max[i] ? ctl->u_max[i] : v);",
-          "        lo = ctl->u_last[i] - ctl->rate[i] * ctl->T;",
-          "        hi = ctl->u_last[i] + ctl->rate[i] * ctl->T;",
+          f"        lo = {base}[i] - ctl->rate[i] * ctl->T;",
+          f"        hi = {base}[i] + ctl->rate[i] * ctl->T;",
           "        v = v < lo ? lo : (v > hi ? hi : v);",
-          "        u[i] = v;",
+          f"        {cu}[i] = v;",
           "        ctl->saturated[i] = v != uw[i];",
           "    }"]
     if has_I:
@@ -213,16 +269,20 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
         else:
             s += [f"    for (i = 0; i < {p}; ++i) {{", "        e[i] = -rr[i];",
                   f"        for (j = 0; j < {n}; ++j) {{\n            e[i] += ctl->C[i][j] * y[j];\n        }}",
-                  f"        for (j = 0; j < {m}; ++j) {{\n            e[i] += ctl->D[i][j] * u[j];\n        }}",
+                  f"        for (j = 0; j < {m}; ++j) {{\n            e[i] += ctl->D[i][j] * {au}[j];\n        }}",
                   "    }"]
         if back:
-            s.append("    ctl->q[0] += ctl->T * (e[0] - (u[0] - uw[0]) / (ctl->Ki[0][0] * ctl->tracking_time));")
+            # per input channel: q += T (e - pinv(Ki) (u - u_wanted) / tracking_time)
+            s += [f"    for (i = 0; i < {p}; ++i) {{", f"        {t} corr = {zero};",
+                  f"        for (j = 0; j < {m}; ++j) {{\n            corr += ctl->Ki_pinv[i][j] * ({cu}[j] - uw[j]);\n"
+                  "        }",
+                  "        ctl->q[i] += ctl->T * (e[i] - corr / ctl->tracking_time);", "    }"]
         else:
             s += ["    {", "        int freeze = 0;",
                   f"        for (i = 0; i < {m}; ++i) {{",
                   f"            {t} push = {zero};",
                   f"            for (j = 0; j < {p}; ++j) {{\n                push -= ctl->Ki[i][j] * (ctl->T * e[j]);\n            }}",
-                  "            if (ctl->saturated[i] && ((uw[i] > u[i] && push > 0) || (uw[i] < u[i] && push < 0))) {",
+                  f"            if (ctl->saturated[i] && ((uw[i] > {cu}[i] && push > 0) || (uw[i] < {cu}[i] && push < 0))) {{",
                   "                freeze = 1;", "            }", "        }",
                   "        if (!freeze) {",
                   f"            for (j = 0; j < {p}; ++j) {{\n                ctl->q[j] += ctl->T * e[j];\n            }}",
@@ -230,12 +290,12 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
     if has_L:
         s += [f"    for (i = 0; i < {n}; ++i) {{", f"        {t} v = {zero};",
               f"        for (j = 0; j < {n}; ++j) {{\n            v += ctl->A[i][j] * ctl->x_hat[j];\n        }}",
-              f"        for (j = 0; j < {m}; ++j) {{\n            v += ctl->B[i][j] * u[j];\n        }}",
+              f"        for (j = 0; j < {m}; ++j) {{\n            v += ctl->B[i][j] * {au}[j];\n        }}",
               "        xn[i] = v;", "    }"]
         if not current:
             s += [f"    for (j = 0; j < {p}; ++j) {{", "        e[j] = y[j];",
                   f"        for (i = 0; i < {n}; ++i) {{\n            e[j] -= ctl->C[j][i] * ctl->x_hat[i];\n        }}",
-                  f"        for (i = 0; i < {m}; ++i) {{\n            e[j] -= ctl->D[j][i] * u[i];\n        }}",
+                  f"        for (i = 0; i < {m}; ++i) {{\n            e[j] -= ctl->D[j][i] * {au}[i];\n        }}",
                   "    }",
                   f"    for (i = 0; i < {n}; ++i) {{",
                   f"        for (j = 0; j < {p}; ++j) {{\n            xn[i] += ctl->L[i][j] * e[j];\n        }}",
@@ -244,6 +304,8 @@ def _step(sig, n, m, p, t, has_L, has_I, has_N, discrete, current, back) -> list
             s.append(f"    for (i = 0; i < {n}; ++i) {{\n        ctl->x_hat[i] = xn[i];\n    }}")
         else:  # forward Euler: xn holds A x_hat + B u + L (y - C x_hat - D u)
             s.append(f"    for (i = 0; i < {n}; ++i) {{\n        ctl->x_hat[i] += ctl->T * xn[i];\n    }}")
+    if delay:  # apply the input computed at the previous sample, hold the new one
+        s.append(f"    for (i = 0; i < {m}; ++i) {{\n        u[i] = ctl->u_held[i];\n        ctl->u_held[i] = un[i];\n    }}")
     s.append(f"    for (i = 0; i < {m}; ++i) {{\n        ctl->u_last[i] = u[i];\n    }}")
     s += ["    return 0;", "}"]
     return s

@@ -32,7 +32,7 @@ from __future__ import annotations
 import sympy as sp
 
 from ..design import Design
-from .common import PYTHON_RESERVED, Function, mangle
+from .common import PYTHON_RESERVED, Function, discriminants, mangle, sample_period
 
 __all__ = ["controller_functions", "controller_class", "controller_blocker", "CONTROLLER_DOC"]
 
@@ -67,7 +67,8 @@ def controller_functions(design: Design) -> list[Function]:
 
     def add(name, part, label, matrix, conds=(), infinite_ok=False):
         out.append(Function(name, part, "matrix", label, sp.ImmutableMatrix(matrix), params,
-                            _condition_exprs(conds), meanings, infinite_ok=infinite_ok))
+                            _condition_exprs(conds), meanings, infinite_ok=infinite_ok, period=sample_period(design),
+                            nonnegative=discriminants(matrix) if design.sampled is not None else ()))
 
     if design.sampled is not None:
         add("plant_Phi", "sampled plant", "Phi", design.sampled.Phi, design.sampled.valid_when)
@@ -183,6 +184,7 @@ _BODY = '''
         self.x_hat = numpy.zeros(n) if self.L is not None else None
         self.q = numpy.zeros(self.Ki.shape[1]) if self.Ki is not None else None
         self.u_last = numpy.zeros(m)
+        self.u_held = numpy.zeros(m) if self.DELAY else None
         self.saturated = numpy.zeros(m, dtype=bool)
 
     def step(self, y, r=None):
@@ -196,6 +198,9 @@ _BODY = '''
         if self.L is not None and self.CURRENT_FORM:
             self.x_hat = self.x_hat + self.L @ (y - self.C @ self.x_hat)
         x = self.x_hat if self.L is not None else y
+        v = self.u_held if self.DELAY else self.u_last  # the input that acts during this sample
+        if self.DELAY:  # one sample of computation delay: the gain also acts on u[k-1]
+            x = numpy.concatenate([x, v])
         u_want = -self.K @ x
         if self.Ki is not None:
             u_want = u_want - self.Ki @ self.q
@@ -203,10 +208,11 @@ _BODY = '''
             u_want = u_want + self.N @ r
         u = numpy.clip(u_want, self.u_min, self.u_max)
         step_limit = self.rate * self.T
-        u = numpy.clip(u, self.u_last - step_limit, self.u_last + step_limit)
+        u = numpy.clip(u, v - step_limit, v + step_limit)
         self.saturated = u != u_want
+        u_new = u
         if self.Ki is not None:
-            measured = y if self.L is not None else self.C @ y + self.D @ u
+            measured = y if self.L is not None else self.C @ y + self.D @ (v if self.DELAY else u)
             e = measured - r
             if self.ANTI_WINDUP == "back_calculation":
                 correction = numpy.linalg.pinv(self.Ki) @ (u - u_want) / self.tracking_time
@@ -219,12 +225,16 @@ _BODY = '''
                     self.q = self.q + self.T * e
         if self.L is not None:
             xh, L, C, D = self.x_hat, self.L, self.C, self.D
+            if self.DELAY:  # the estimator is driven by the input that acts during this sample
+                u = v
             if self.CURRENT_FORM:
                 self.x_hat = self.A @ xh + self.B @ u
             elif self.DISCRETE:
                 self.x_hat = self.A @ xh + self.B @ u + L @ (y - C @ xh - D @ u)
             else:
                 self.x_hat = xh + self.T * (self.A @ xh + self.B @ u + L @ (y - C @ xh - D @ u))
+        if self.DELAY:  # hold the new input; apply the one computed at the previous sample
+            self.u_held, u = u_new, v
         self.u_last = u
         return u.copy()
 '''
@@ -260,6 +270,9 @@ def controller_class(design: Design, printer, names: dict[str, str]) -> list[str
              "    Law per sample: u = -K x_hat - Ki q + N r, clipped to [u_min, u_max] and to rate * T per",
              f"    sample; integrator q += T (y - r) with anti-windup ({aw['method']}); estimator "
              f"({form} form) advanced with the applied u.",
+             *(["    Computation delay: step() returns the input computed at the previous sample (apply it now);",
+                "    the one computed from this y is held in u_held and returned by the next step()."]
+               if discrete and model.sampling.compute_delay else []),
              "    Gains from a linear model must be validated in simulation and on the machine with safe limits;",
              "    local codes, safety standards and licensed practice take precedence.",
              '    """', ""]
@@ -269,6 +282,7 @@ def controller_class(design: Design, printer, names: dict[str, str]) -> list[str
               f"    DISCRETE = {discrete!r}",
               f"    CURRENT_FORM = {form == 'current' and design.estimator is not None!r}",
               f"    ANTI_WINDUP = {aw['method']!r}",
+              f"    DELAY = {bool(discrete and model.sampling.compute_delay)!r}  # one sample of computation delay",
               f"    N_STATES, N_INPUTS, N_OUTPUTS = {model.n_states}, {model.n_inputs}, {model.n_outputs}"]
     if tt is None:
         lines.append("    TRACKING_TIME = None  # default: ten sample periods")

@@ -142,7 +142,7 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
 
     def test(indexes):
         for index in indexes:
-            cond, orig = fn.conditions[index].xreplace(rename), fn.conditions[index]
+            cond, orig = fn.printed_conditions()[index].xreplace(rename), fn.conditions[index]
             (value,), terms = failure_rule(cond, definitions)
             scale = " + ".join(printer.doprint(abs(t)) if t.is_number else f"numpy.abs({printer.doprint(t)})"
                               for t in terms)
@@ -160,7 +160,7 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
                           for t in terms)
         body.append(f"    _bad = _fails({printer.doprint(value)} < -{TOLERANCE['double']!r} * (1.0 + {scale}), "
                     f"shape, {fn.name!r}, {sp.sstr(cond) + ' >= 0'!r}, _bad)")
-    entries = [e.xreplace(rename) for e in fn.matrix]
+    entries = [e.xreplace(rename) for e in fn.printed()]  # short-period stable forms (same values)
     if definitions:  # the definitions already share what there is to share
         replacements, reduced = [], entries
     else:
@@ -298,6 +298,9 @@ def python_module(design: Design) -> str:
             "Gains from a linear model must be validated in simulation and on the machine with safe limits;",
             "local codes, safety standards and licensed practice take precedence.",
             '"""', "import numpy", "", f"__all__ = {[f.name for f in fns] + (['Controller'] if blocker is None else [])!r}", _HELPER]
+    from .stable_forms import printed_helpers
+
+    head += printed_helpers((e for fn in fns for e in fn.printed()), printer, "python")
     for fn in fns:
         head += [""] + _function(design, fn, printer) + [""]
     if blocker is None:

@@ -30,7 +30,7 @@ from .expressions import parse_expression
 __all__ = ["Sampling", "read_sampling", "read_input_limits", "read_anti_windup", "is_z_target",
            "DISCRETE_KEYS", "ANTI_WINDUP_KEYS", "METHODS"]
 
-DISCRETE_KEYS = {"sample_time", "method", "compute_delay", "estimator_form"}
+DISCRETE_KEYS = {"sample_time", "method", "compute_delay", "delay_poles", "estimator_form"}
 ANTI_WINDUP_KEYS = {"anti_windup", "tracking_time"}
 LIMIT_KEYS = {"min", "max", "rate"}
 METHODS = ("zoh", "euler", "tustin", "series")  # the holds of symgain.design.discretize
@@ -61,6 +61,7 @@ class Sampling:
     method: str = "zoh"  # zoh | euler | tustin | series
     compute_delay: bool = False
     estimator_form: str = "prediction"  # prediction | current
+    delay_poles: tuple = ()  # z poles of the delay states (compute_delay); () means every one at z = 0
 
 
 def _choice(table: dict, key: str, choices: tuple[str, ...], default: str, where: Where) -> str:
@@ -87,8 +88,29 @@ def read_sampling(table: Any, symbols: dict, where: Where | None = None) -> Samp
     delay = table.get("compute_delay", False)
     if not isinstance(delay, bool):
         raise ModelError(f"must be true or false, found {delay!r}", where=where.child("compute_delay"))
+    poles = _delay_poles(table, delay, symbols, where)
     return Sampling(period, _choice(table, "method", METHODS, "zoh", where), delay,
-                    _choice(table, "estimator_form", ("prediction", "current"), "prediction", where))
+                    _choice(table, "estimator_form", ("prediction", "current"), "prediction", where), poles)
+
+
+def _delay_poles(table: dict, delay: bool, symbols: dict, where: Where) -> tuple:
+    """``delay_poles``: the z poles given to the delay states (only with compute_delay = true).
+
+    >>> _delay_poles({"delay_poles": ["0.1"]}, True, {}, Where(key="discrete"))
+    (1/10,)
+    """
+    if "delay_poles" not in table:
+        return ()
+    if not delay:
+        raise ModelError("delay_poles needs compute_delay = true", where=where.child("delay_poles"))
+    values = table["delay_poles"]
+    if not isinstance(values, list) or not values:
+        raise ModelError("must be a list of z poles, one per input, such as [\"0\"]", where=where.child("delay_poles"))
+    out = tuple(parse_expression(v, symbols, where=where.child("delay_poles")) for v in values)
+    for v in out:
+        if v.is_number and not v.is_real:
+            raise ModelError(f"a delay pole must be real, found {v}", where=where.child("delay_poles"))
+    return out
 
 
 def read_input_limits(table: Any, inputs: tuple[str, ...], symbols: dict,
