@@ -53,6 +53,7 @@ from ..model import S, TargetSpec
 from .placement import gain_symbols
 from .target_split import split_target
 from .validity import nonzero_conditions
+from ..mathtext import math_text
 
 __all__ = ["controllability_indices", "canonical_gain", "CanonicalGain", "design_canonical", "SOURCE"]
 
@@ -199,7 +200,7 @@ def design_canonical(A, B, spec: TargetSpec, target, *, part, symbol, states, av
     chains = ", ".join(f"mu_{i + 1} = {k}" for i, k in enumerate(mu))
     notes = (f"canonical design for several {label}s: controllability indices {chains}; one polynomial per "
              f"chain; unique for this split; {rule}: "
-             + "; ".join(f"chain {k} gets {sp.sstr(sp.factor(p))}" for k, p in enumerate(polys, start=1)),
+             + "; ".join(f"chain {k} gets {math_text(sp.factor(p))}" for k, p in enumerate(polys, start=1)),
              SOURCE, *target.notes)
     steps = (
         Step("controllability_indices", "controllability indices (crate-order scan of b_i, A b_i, ...)",

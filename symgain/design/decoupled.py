@@ -27,6 +27,7 @@ import sympy as sp
 from ..model import TargetSpec
 from .placement import gain_symbols
 from .target_split import split_target
+from ..mathtext import math_text
 
 __all__ = ["plant_blocks", "design_blocks"]
 
@@ -139,7 +140,7 @@ def design_blocks(A, B, spec: TargetSpec, target, blocks, *, part, symbol, state
               Step("valid_when", "conditions for the formulas to hold", valid_t)]
     head = (f"the plant decouples into {len(blocks)} blocks ({layout}); each block designed on its own, "
             f"{symbol} zero between blocks; {rule}: "
-            + "; ".join(f"block {k} gets {sp.sstr(sp.factor(p))}" for k, p in enumerate(shares, start=1)))
+            + "; ".join(f"block {k} gets {math_text(sp.factor(p))}" for k, p in enumerate(shares, start=1)))
     return GainDesign(part=part, symbol=symbol, gain=sp.ImmutableMatrix(K), valid_when=valid_t, target=target,
                       closed_loop_polynomial=closed, steps=tuple(steps), free_gains=tuple(free),
                       notes=(head, *[n_ for n_ in notes if n_ not in target.notes], *target.notes),

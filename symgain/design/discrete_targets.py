@@ -29,6 +29,7 @@ from ..errors import ModelError
 from ..model import S, Z, TargetSpec
 from ..model.sampling_keys import is_z_target
 from .targets import Target, _is_zero, poles_polynomial, resolve_target
+from ..mathtext import math_text
 
 __all__ = ["Z", "resolve_z_target", "map_poles", "z_of_s_polynomial", "is_z_target"]
 
@@ -130,6 +131,6 @@ def resolve_z_target(spec: TargetSpec, order: int, T: sp.Expr) -> Target:
         return Target(expr, None, "given polynomial in z")
     continuous = resolve_target(spec, order)
     poly, zpoles = map_poles(_s_poles(continuous, where), T)
-    note = f"s-target mapped to z by z = exp(s*{sp.sstr(T)}): {continuous.description}"
+    note = f"s-target mapped to z by z = exp(s*{math_text(T)}): {continuous.description}"
     return Target(poly, zpoles, f"{continuous.description}, mapped by z = exp(s T)",
                   (note, *continuous.notes))

@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import sympy as sp
 
 from ..errors import ClosedFormLimitation, DesignError
+from ..mathtext import math_text
 
 __all__ = ["BranchSolution", "SolvedSystem", "solve_branches", "real_conditions"]
 
@@ -195,11 +196,11 @@ def _solve(polys, unknowns, factors_seen) -> tuple[list[BranchSolution], int]:
         if roots is None:
             whole = sp.expand(f_expr - g) == 0 or sp.expand(f_expr + g) == 0 or len(facs) == 1
             where_from = ("the eliminating polynomial, irreducible over the parameters' field" if whole
-                          else f"the irreducible factor {sp.sstr(f_expr)} of the eliminating polynomial "
-                          f"{sp.sstr(sp.factor(g))}")
+                          else f"the irreducible factor {math_text(f_expr)} of the eliminating polynomial "
+                          f"{math_text(sp.factor(g))}")
             raise ClosedFormLimitation(
                 f"the gain {x} is a root of {where_from}, of degree {f.degree()}"
-                + (f": {sp.sstr(f_expr)}" if whole else "") + "; no readable closed form; "
+                + (f": {math_text(f_expr)}" if whole else "") + "; no readable closed form; "
                 "change the pattern, use method = \"canonical\", or give an input_direction")
         if not roots:
             dropped += f.degree()
@@ -220,12 +221,12 @@ def _solve(polys, unknowns, factors_seen) -> tuple[list[BranchSolution], int]:
                     continue
                 (vals,) = tuple(sol)
                 if set().union(*[sp.sympify(v).free_symbols for v in vals]) & set(rest):
-                    raise ClosedFormLimitation(f"under the root {sp.sstr(root)} of {sp.sstr(f_expr)} the other "
+                    raise ClosedFormLimitation(f"under the root {math_text(root)} of {math_text(f_expr)} the other "
                                                "gains stay undetermined")
                 sub_branches, sub_dropped = [BranchSolution(dict(zip(rest, vals)))], 0
             else:
                 raise ClosedFormLimitation(
-                    f"under the irrational root {sp.sstr(root)} of {sp.sstr(f_expr)} the remaining coefficient "
+                    f"under the irrational root {math_text(root)} of {math_text(f_expr)} the remaining coefficient "
                     "equations are not linear: nested radicals are not attempted")
             dropped += sub_dropped
             for sb in sub_branches:

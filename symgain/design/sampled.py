@@ -50,6 +50,7 @@ from .discrete_targets import resolve_z_target
 from .targets import Target
 from .discretize import sampled_plant
 from .validity import nonzero_conditions
+from ..mathtext import math_text
 
 __all__ = ["derive_sampled", "z_spec", "delay_z_spec", "delay_plant"]
 
@@ -96,7 +97,7 @@ def delay_z_spec(spec: TargetSpec, order: int, T: sp.Expr, m: int, delay_poles=(
     if len(extra) != m:
         raise ModelError(f"delay_poles holds {len(extra)} poles but the delay adds {m} (one per input)")
     poly = sp.expand(base.polynomial * sp.Mul(*[Z - d for d in extra]))
-    shown = ", ".join(sp.sstr(d) for d in extra)
+    shown = ", ".join(math_text(d) for d in extra)
     note = f"computation delay: {m} extra pole(s) at z = {shown} (the delay states)"
     target = Target(poly, None if base.poles is None else (*base.poles, *extra),
                     f"{base.description}; delay poles at z = {shown}", (*base.notes, note))

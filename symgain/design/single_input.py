@@ -20,6 +20,7 @@ from .placement import place_single_input
 from .result import GainDesign, Step
 from .targets import resolve_target
 from .validity import nonzero_conditions
+from ..mathtext import math_text
 
 __all__ = ["design_gain", "FORMS", "EXPANDED_LIMIT"]
 
@@ -42,7 +43,7 @@ def _unreachable_directions(A: sp.Matrix, B: sp.Matrix, states, lead: str = "no 
     combos = []
     for v in vectors[:3]:
         combo = sum((sp.simplify(c) * sp.Symbol(s) for c, s in zip(v, states)), sp.Integer(0))
-        combos.append(sp.sstr(combo))
+        combos.append(math_text(combo))
     return f"; {lead} " + ", nor ".join(combos) if combos else ""
 
 

@@ -33,6 +33,7 @@ import sympy as sp
 from ..errors import ClosedFormLimitation, ModelError, Where
 from ..model.expressions import parse_expression
 from ..model import S
+from ..mathtext import math_text
 
 __all__ = ["parse_target_split", "split_target", "RULE"]
 
@@ -62,9 +63,9 @@ def parse_target_split(raw, symbols: dict, where: Where) -> tuple[sp.Expr, ...]:
             try:
                 poly = sp.Poly(expr, S)
             except sp.PolynomialError:
-                raise ModelError(f"{sp.sstr(expr)} is not a polynomial in s", where=where.at(i)) from None
+                raise ModelError(f"{math_text(expr)} is not a polynomial in s", where=where.at(i)) from None
             if poly.degree() < 1 or sp.simplify(poly.LC() - 1) != 0:
-                raise ModelError(f"{sp.sstr(expr)} must be a monic polynomial in s", where=where.at(i))
+                raise ModelError(f"{math_text(expr)} must be a monic polynomial in s", where=where.at(i))
             out.append(expr)
     return tuple(out)
 
@@ -112,7 +113,7 @@ def split_target(target, given, sizes: list[int], what: str = "block",
                                  "states", where=where.at(i))
         if sp.cancel(sp.expand(sp.Mul(*given)) - target.polynomial) != 0:
             raise ModelError("the product of the target_split entries is not the target polynomial "
-                             f"{sp.sstr(target.polynomial)}", where=where)
+                             f"{math_text(target.polynomial)}", where=where)
         return [sp.expand(p) for p in given], f"target split as the model gives it (target_split, one per {what})"
     room, parts = list(sizes), [[] for _ in sizes]
     for f in _factors(target):
@@ -120,7 +121,7 @@ def split_target(target, given, sizes: list[int], what: str = "block",
         k = next((i for i, r in enumerate(room) if r >= d), None)
         if k is None:
             raise ClosedFormLimitation(
-                f"the target's factor {sp.sstr(sp.expand(f))} (degree {d}) does not fit the {what}s left "
+                f"the target's factor {math_text(sp.expand(f))} (degree {d}) does not fit the {what}s left "
                 f"(sizes {', '.join(map(str, sizes))}); give target_split = [...] with one polynomial per {what}",
                 where=where)
         room[k] -= d

@@ -19,6 +19,7 @@ import sympy as sp
 
 from ..errors import ModelError, printable
 from ..model import S, TargetSpec
+from ..mathtext import math_text
 
 __all__ = ["Target", "resolve_target", "poles_polynomial", "damping_from_overshoot", "exact",
            "target_warnings"]
@@ -141,7 +142,7 @@ def _sane(value, label: str, where, upper=None) -> sp.Expr:
         number = float(value.evalf(30))
         if not number > 0 or (upper is not None and not number < upper):
             bounds = f"between 0 and {upper}" if upper is not None else "positive"
-            raise ModelError(f"{label} must be {bounds}, found {sp.sstr(value)}", where=where)
+            raise ModelError(f"{label} must be {bounds}, found {math_text(value)}", where=where)
     elif value.is_nonpositive:
         raise ModelError(f"{label} must be positive, but its declared sign allows only values <= 0",
                          where=where)
@@ -182,7 +183,7 @@ def target_warnings(design) -> list[str]:
             continue  # symbols without nominal values: nothing to say
         for pole, value in found:
             if np.isfinite(value) and value.real >= -1e-12 * max(1.0, abs(value)):
-                shown = sp.sstr(pole) if pole is not None else f"{value.real:.4g}{value.imag:+.4g}j"
+                shown = math_text(pole) if pole is not None else f"{value.real:.4g}{value.imag:+.4g}j"
                 out.append(f"{part.part}: target pole {shown} has a real part >= 0 (at nominal values): "
                            "the closed loop is not asymptotically stable")
     return list(dict.fromkeys(out))

@@ -119,7 +119,8 @@ def _function(design: Design, fn: Function, printer: PythonPrinter) -> list[str]
                                            *[e.free_symbols for _, e in fn.definitions])
     rename = {s: sp.Symbol(names[str(s)]) for s in symbols if str(s) in names}
     args = ", ".join(names[a] for a in fn.arguments)
-    body = [f"def {fn.name}(*, {args}, on_invalid=\"raise\", check_ranges=True):"]
+    keywords = ", ".join([*([args] if args else []), 'on_invalid="raise"', "check_ranges=True"])
+    body = [f"def {fn.name}(*, {keywords}):"]
     body += ["    " + line if line else "" for line in _docstring(design, fn, names)]
     signs = {p.name: p.sign for p in design.model.parameters}
     for a in fn.arguments:
