@@ -32,6 +32,7 @@ __all__ = ["design_warnings", "condition_can_fail", "GAIN_NAMES", "ILL_CONDITION
 
 GAIN_NAMES = ("K", "L", "N", "Ki", "s")
 ILL_CONDITIONED = 1e6
+SIGN_ANALYSIS_LIMIT = 80  # operations of a condition above which the range box is sampled, not factored
 
 
 def _box_substitution(model) -> tuple[dict, list]:
@@ -49,14 +50,16 @@ def _box_substitution(model) -> tuple[dict, list]:
 
 def _sign_analysis(f: sp.Expr, model) -> bool | None:
     """True: f cannot vanish on the box; False: it can (a sign change is proven); None: undecided."""
+    if sp.count_ops(f) > SIGN_ANALYSIS_LIMIT or len(f.free_symbols) > 4:
+        return None  # too large to factor affordably: the caller samples the box instead
     subs, _ = _box_substitution(model)
     try:
         g = sp.together(f.xreplace(subs))
         num, den = sp.fraction(g)
-        num = sp.factor(num) if sp.count_ops(num) < 300 else num
+        num = sp.factor(num) if sp.count_ops(num) < SIGN_ANALYSIS_LIMIT else num
     except (TypeError, ValueError, sp.PolynomialError):  # pragma: no cover - exotic expressions
         return None
-    for form in (num, sp.expand(num) if sp.count_ops(num) < 300 else num):
+    for form in (num, sp.expand(num) if sp.count_ops(num) < SIGN_ANALYSIS_LIMIT else num):
         if form.is_positive or form.is_negative:
             return True
     return None
