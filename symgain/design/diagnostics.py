@@ -49,19 +49,32 @@ def _box_substitution(model) -> tuple[dict, list]:
 
 
 def _sign_analysis(f: sp.Expr, model) -> bool | None:
-    """True: f cannot vanish on the box; False: it can (a sign change is proven); None: undecided."""
+    """True: f cannot vanish on the box; False: it can (a sign change is proven); None: undecided.
+
+    Only rational functions of the parameters are analysed (a transcendental f, or one too large
+    to expand affordably, is left to the caller, who samples the box): after the substitution the
+    numerator is expanded in the u's (and in any positive parameter without a range), and a
+    numerator whose coefficients all have one sign cannot vanish there.
+    """
     if sp.count_ops(f) > SIGN_ANALYSIS_LIMIT or len(f.free_symbols) > 4:
-        return None  # too large to factor affordably: the caller samples the box instead
-    subs, _ = _box_substitution(model)
+        return None
+    if not f.is_rational_function(*f.free_symbols):
+        return None
+    subs, us = _box_substitution(model)
     try:
-        g = sp.together(f.xreplace(subs))
-        num, den = sp.fraction(g)
-        num = sp.factor(num) if sp.count_ops(num) < SIGN_ANALYSIS_LIMIT else num
+        num, _ = sp.fraction(sp.together(f.xreplace(subs)))
+        gens = sorted(num.free_symbols, key=str)
+        if any(not g.is_positive for g in gens):
+            return None  # a parameter of unknown sign stays free: the box cannot settle it
+        if not gens:
+            return bool(num.is_nonzero) or None
+        coeffs = sp.Poly(num, *gens).coeffs()
     except (TypeError, ValueError, sp.PolynomialError):  # pragma: no cover - exotic expressions
         return None
-    for form in (num, sp.expand(num) if sp.count_ops(num) < SIGN_ANALYSIS_LIMIT else num):
-        if form.is_positive or form.is_negative:
-            return True
+    if len(coeffs) > 20 * SIGN_ANALYSIS_LIMIT:
+        return None
+    if all(c.is_positive for c in coeffs) or all(c.is_negative for c in coeffs):
+        return True
     return None
 
 
