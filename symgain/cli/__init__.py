@@ -63,6 +63,12 @@ def whole_number(low: int, high: int, what: str = "a whole number"):
     return parse
 
 
+def output_option(p) -> None:
+    """The one output-folder option of every command that writes files (``--out`` is an alias)."""
+    p.add_argument("-o", "--output", "--out", dest="output", metavar="DIR", default=None,
+                   help="output folder (default ./symgain-out/<model name>)")
+
+
 def positive_number(text: str) -> float:
     """An argparse type: a positive finite number (nan, inf, 0 and negatives are refused).
 

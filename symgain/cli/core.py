@@ -87,11 +87,9 @@ def parse_point(text: str, model) -> dict[str, float]:
             raise ModelError(f"--at {name}: {printable(value.strip(), 40)!r} is not a number") from None
         if not math.isfinite(point[name]):
             raise ModelError(f"--at {name}: the value must be a finite number")
-        sign = model.parameter(name).sign
-        value = point[name]
-        if (sign == "positive" and not value > 0) or (sign == "nonnegative" and value < 0) or \
-                (sign == "nonzero" and value == 0):
-            raise ModelError(f"--at {name} = {value:g} contradicts the declared sign ({sign})")
+        parameter = model.parameter(name)
+        if not parameter.admits(point[name]):
+            raise ModelError(f"--at {name} = {point[name]:g} contradicts the declared sign ({parameter.sign})")
     return point
 
 

@@ -5,7 +5,7 @@ import argparse
 
 from ..emit import TARGETS  # light: the emitters themselves load on use
 from .core import add_form_option
-from .sweep import output_option
+from . import output_option
 
 EPILOG = """examples:
   symgain emit examples/greenhouse_cart.toml --to python --to c -o build

@@ -5,6 +5,7 @@ import argparse
 import tempfile
 
 from ..errors import ModelError
+from . import output_option
 
 EPILOG = """examples:
   symgain simulate examples/greenhouse_cart.toml
@@ -43,8 +44,7 @@ def add_to(sub) -> None:
                        "points. Prints a table per scenario and point, names the worst point and writes "
                        "one figure per scenario.")
     p.add_argument("model", help="model file (TOML)")
-    p.add_argument("-o", "--output", metavar="DIR", default=None,
-                   help="output folder (default ./symgain-out/<model name>)")
+    output_option(p)
     p.add_argument("--quiet", action="store_true",
                    help="tables of the nominal, the worst and the failing points only")
     g = p.add_argument_group("scenario (replaces the file's scenarios)")

@@ -7,19 +7,13 @@ from pathlib import Path
 from contextlib import contextmanager
 
 from ..errors import ModelError
-from . import whole_number
+from . import output_option, whole_number
 
 # numpy, sympy and the design stage load inside the commands (fast --help)
 
 _FMT = argparse.RawDescriptionHelpFormatter
 MAX_ROBUST_POINTS = 100_000  # eigenvalue cross-check points of robust
 MAX_MISMATCH = 6  # mismatched parameters of robust (the closed-form conditions grow fast)
-
-
-def output_option(p) -> None:
-    """The one output-folder option of every command that writes files (``--out`` is an alias)."""
-    p.add_argument("-o", "--output", "--out", dest="output", metavar="DIR", default=None,
-                   help="output folder (default ./symgain-out/<model name>)")
 
 
 def _common(p, model_help="model file (TOML)", nargs=None):
@@ -102,9 +96,7 @@ def _folder(args, model):
 
 def run_schedule(args) -> int:
     import numpy as np
-    import sympy as sp
 
-    from . import derive_and_warn
     from ..model.toml_file import load_model
     from ..emit.plots import png_bytes, schedule_figure
     from ..analysis.evaluate import GainEvaluator

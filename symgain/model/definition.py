@@ -180,12 +180,31 @@ class Parameter:
                 raise ModelError(f"nominal {nominal:g} lies outside range [{range[0]:g}, {range[1]:g}]",
                                  where=where)
         for value in ([nominal] if nominal is not None else []) + list(range or []):
-            if sign == "positive" and value <= 0 or sign == "nonnegative" and value < 0:
+            if sign != "nonzero" and not sign_admits(sign, value):
                 raise ModelError(f"value {value:g} contradicts sign {sign!r}", where=where)
-        if sign == "nonzero" and nominal == 0:
+        if nominal is not None and not sign_admits(sign, nominal):
             raise ModelError("nominal value 0 contradicts sign 'nonzero'", where=where)
         symbol = sp.Symbol(name, **_assumptions(sign))
         return cls(name, symbol, sign, range, nominal, role, unit, meaning)
+
+    def admits(self, value: float) -> bool:
+        """Whether ``value`` agrees with the declared sign (the range is not consulted).
+
+        >>> Parameter.declare("m", sign="positive").admits(0.0)
+        False
+        """
+        return sign_admits(self.sign, value)
+
+
+def sign_admits(sign: str, value: float) -> bool:
+    """The one sign rule: positive > 0, nonnegative >= 0, nonzero != 0, real anything (NaN never).
+
+    >>> [sign_admits(s, 0.0) for s in ("positive", "nonnegative", "nonzero", "real")]
+    [False, True, False, True]
+    """
+    if value != value:
+        return False
+    return {"positive": value > 0, "nonnegative": value >= 0, "nonzero": value != 0}.get(sign, True)
 
 
 @dataclass(frozen=True)
