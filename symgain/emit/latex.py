@@ -163,10 +163,38 @@ def _equilibrium(equilibrium: dict) -> list[str]:
             + ["States, inputs and outputs are deviations from it."])
 
 
-def _target(part: GainDesign) -> list[str]:
+_PROTOTYPE_NAMES = {"bessel": "Bessel", "butterworth": "Butterworth", "itae": "ITAE"}
+
+
+def target_sentence(description: str, symbols: dict) -> str:
+    r"""The target's description with the model's symbols and the z mapping set as mathematics.
+
+    >>> target_sentence("butterworth prototype, bandwidth omega_c", {"omega_c": sp.Symbol("omega_c")})
+    'Butterworth prototype, bandwidth $\\omega_{c}$'
+    >>> target_sentence("explicit poles, mapped by z = exp(s T)", {"T": sp.Symbol("T")})
+    'explicit poles, mapped by $z = e^{sT}$'
+    """
+    import re
+
+    pieces = []
+    for token in re.split(r"(z = exp\(s T\)|[A-Za-z_][A-Za-z_0-9]*)", description):
+        if token == "z = exp(s T)":
+            pieces.append("$z = e^{sT}$")
+        elif token in _PROTOTYPE_NAMES:
+            pieces.append(_PROTOTYPE_NAMES[token])
+        elif token in symbols:
+            pieces.append(f"${tex(symbols[token])}$")
+        elif token == "z":
+            pieces.append("$z$")
+        else:
+            pieces.append(text(token))
+    return "".join(pieces)
+
+
+def _target(part: GainDesign, symbols: dict) -> list[str]:
     if part.target is None:
         return []
-    out = [r"\subsection{Target}", f"Target: {text(part.target.description)}."]
+    out = [r"\subsection{Target}", f"Target: {target_sentence(part.target.description, symbols)}."]
     for note in part.notes:
         out.append(sentence(note))
     if part.target.poles:
@@ -200,7 +228,7 @@ def _trivially_equal(lhs, rhs) -> bool:
 def _step(part: GainDesign, step: Step) -> list[str]:
     key = f"{part.part}.{step.name}"
     var = "z" if _in_z(part) else "s"
-    title = step.title if step.title.startswith("det") else step.title[:1].upper() + step.title[1:]
+    title = step.title if step.title.startswith("det(") else step.title[:1].upper() + step.title[1:]
     out = [r"\subsection{" + prose(title) + "}"]
     value = step.value
     if step.name == "solution" and isinstance(value, sp.MatrixBase):
@@ -310,7 +338,7 @@ def _part(design: Design, part: GainDesign, sensitivity=None) -> list[str]:
     rows, cols = GAIN_AXES.get(part.part, (None, None))
     out.append(f"${part.symbol}$ is {part.gain.rows}$\\times${part.gain.cols}"
                + (f" (rows: {rows}, columns: {cols})" if rows else "") + ".")
-    out += _target(part)
+    out += _target(part, design.model.symbols)
     for step in part.steps:
         out += _step(part, step)
     out += _extras(part)
