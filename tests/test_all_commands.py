@@ -127,6 +127,49 @@ poles = ["-3", "-4"]
 [estimator]
 poles = ["-10", "-12"]
 ''',
+    "sampled_delay_estimator": '''
+name = "sampled_delay_estimator"
+[parameters]
+m = { sign = "positive", range = [1, 3] }
+T = { sign = "positive", range = [0.001, 0.01], nominal = 0.005, role = "design" }
+[plant]
+states = ["x", "v"]
+inputs = ["F"]
+outputs = ["x"]
+A = [["0", "1"], ["0", "0"]]
+B = [["0"], ["1/m"]]
+[discrete]
+sample_time = "T"
+compute_delay = true
+estimator_form = "current"
+[feedback]
+deadbeat = true
+[estimator]
+z_poles = ["0.2", "0.3"]
+[feedforward]
+[input_limits]
+F = { min = "-5", max = "5" }
+''',
+    "sampled_delay_integral": '''
+name = "sampled_delay_integral"
+[parameters]
+m = { sign = "positive", range = [1, 3] }
+[plant]
+states = ["x", "v"]
+inputs = ["F"]
+outputs = ["x"]
+A = [["0", "1"], ["0", "-1/m"]]
+B = [["0"], ["1/m"]]
+[discrete]
+sample_time = "0.01"
+compute_delay = true
+[integral]
+z_poles = ["0.5", "0.5", "0.6", "0.1"]
+[estimator]
+z_poles = ["0.2", "0.3"]
+[input_limits]
+F = { min = "-50", max = "50" }
+''',
     "constant_by_value": '''
 name = "constant_by_value"
 [parameters]

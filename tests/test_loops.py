@@ -98,3 +98,44 @@ def test_a_sampled_loop_is_judged_by_the_unit_circle():
     assert loop.stable([0.5, -0.9 + 0.1j]) and not loop.stable([1.01, 0.2])
     assert loop.stable([-0.5])
     assert sp.Symbol("T") not in loop.matrix.free_symbols  # a numeric period is put in
+
+
+@pytest.mark.parametrize("form", ["prediction", "current"])
+def test_delayed_loop_with_estimator_has_the_separated_poles(form):
+    """compute_delay: the loop holds [x; u[k-1]; x_hat]; at matched values its eigenvalues are the
+    target's z poles, the delay pole (z = 0 by default) and the estimator's (separation principle)."""
+    design = _design(f'[discrete]\nsample_time = "{T}"\ncompute_delay = true\nestimator_form = "{form}"\n'
+                     '[feedback]\npoles = ["-8", "-10"]\n[estimator]\npoles = ["-30", "-40"]\n')
+    eig, loop = _loop_eigenvalues(design, POINT, POINT)
+    assert loop.discrete and len(eig) == 5
+    target = np.sort_complex(np.r_[np.exp(np.array([-8, -10, -30, -40]) * T), 0.0].astype(complex))
+    assert np.allclose(eig, target, atol=1e-7)
+
+
+def test_delayed_loop_matches_an_independent_construction_under_mismatch():
+    """[x; v; x_hat] with v[k+1] = u[k] = -K_x x_hat - K_v v, built here from scipy's ZOH."""
+    design = _design(f'[discrete]\nsample_time = "{T}"\ncompute_delay = true\n'
+                     '[feedback]\npoles = ["-8", "-10"]\n[estimator]\npoles = ["-30", "-40"]\n')
+    true, estimate = {"m": 5.5, "c": 2.0}, POINT
+    subs = {design.model.symbols[k]: v for k, v in estimate.items()}
+    K = np.array(design.feedback.gain.xreplace(subs), dtype=float)
+    L = np.array(design.estimator.gain.xreplace(subs), dtype=float)
+    Kx, Kv = K[:, :2], K[:, 2:]
+    A, B, C = _plant(true)
+    Phi, Gamma, *_ = scipy.signal.cont2discrete((A, B, C, np.zeros((1, 1))), T, method="zoh")
+    Ah, Bh, Ch = _plant(estimate)
+    Phih, Gammah, *_ = scipy.signal.cont2discrete((Ah, Bh, Ch, np.zeros((1, 1))), T, method="zoh")
+    M = np.block([[Phi, Gamma, np.zeros((2, 2))],
+                  [np.zeros((1, 2)), -Kv, -Kx],
+                  [L @ C, Gammah, Phih - L @ Ch]])
+    eig, _ = _loop_eigenvalues(design, true, estimate)
+    assert np.allclose(eig, np.sort_complex(np.linalg.eigvals(M)), atol=1e-9)
+
+
+def test_delayed_loop_with_integral_action():
+    """[x; v; q] with q[k+1] = q[k] + T C x: eigenvalues at the integral target's z poles and z = 0."""
+    design = _design(f'[discrete]\nsample_time = "{T}"\ncompute_delay = true\n'
+                     '[integral]\npoles = ["-6", "-8", "-10"]\n')
+    eig, loop = _loop_eigenvalues(design, POINT, POINT)
+    target = np.sort_complex(np.r_[np.exp(np.array([-6, -8, -10]) * T), 0.0].astype(complex))
+    assert loop.discrete and np.allclose(eig, target, atol=1e-7)

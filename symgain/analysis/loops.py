@@ -155,48 +155,58 @@ def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
         gains = "K"
         law = "state feedback u = -K x"
     q = Ki.cols
-    current = discrete and design.estimator is not None and model.sampling.estimator_form == "current"
+    delay = discrete and model.sampling.compute_delay
+    nv = m if delay else 0  # with the computation delay the input of the previous sample is a state
+    estimated = design.estimator is not None
+    current = discrete and estimated and model.sampling.estimator_form == "current"
     if current and any(e != 0 for e in D):
         raise DesignError("a current-form estimator with a direct feedthrough D is not analysed in the loop "
                           "(u would depend on itself)", where=Where(model.source))
-    if design.estimator is not None:
+    sizes = [n, nv, n if estimated else 0, q, m]  # x, u[k-1], x_hat or x_bar, q; then what u gets from N r
+    size = sum(sizes) - m
+
+    def select(block):
+        start = sum(sizes[:block])
+        return sp.Matrix.hstack(sp.zeros(sizes[block], start), sp.eye(sizes[block]),
+                                sp.zeros(sizes[block], size + m - start - sizes[block]))
+
+    x_sel, v_sel, e_sel, q_sel, r_u = (select(k) for k in range(5))
+    Kx, Kv = K[:, :n], K[:, n:]
+    if estimated:
         L = at_hat(design.estimator.gain, design.estimator)
         Ah, Bh, Ch, Dh = at_hat(A), at_hat(B), at_hat(C), at_hat(D)
-        x_sel = sp.Matrix.hstack(sp.eye(n), sp.zeros(n, n), sp.zeros(n, q))
-        e_sel = sp.Matrix.hstack(sp.zeros(n, n), sp.eye(n), sp.zeros(n, q))  # x_hat (or x_bar)
-        q_sel = sp.Matrix.hstack(sp.zeros(q, n), sp.zeros(q, n), sp.eye(q))
-        if current:  # x_hat[k] = x_bar[k] + L (y[k] - C x_bar[k]); states [x; x_bar; q]
-            x_hat = e_sel + L * (C * x_sel - Ch * e_sel)
-            u_row = -K * x_hat - Ki * q_sel
-            xh_next = Ah * x_hat + Bh * u_row
+    if current:  # x_hat[k] = x_bar[k] + L (y[k] - C x_bar[k]); the state holds x_bar
+        x_hat = e_sel + L * (C * x_sel - Ch * e_sel)
+    else:
+        x_hat = e_sel if estimated else x_sel
+    u_row = -Kx * x_hat - Ki * q_sel + r_u
+    if delay:  # u[k] = -K [x_hat[k]; u[k-1]] - Ki q[k], applied during the next sample
+        u_row -= Kv * v_sel
+    applied = v_sel if delay else u_row  # the input acting on the plant during this sample
+    y_row = C * x_sel + D * applied
+    rows = [A * x_sel + B * applied] + ([u_row] if delay else [])
+    states = tuple(model.states) + tuple(f"{u}_prev" for u in model.inputs if delay)
+    if estimated:
+        if current:
+            rows.append(Ah * x_hat + Bh * applied)
         else:  # prediction form (continuous: x_hat' = A x_hat + B u + L (y - C x_hat - D u))
-            u_row = -K * e_sel - Ki * q_sel
-            y_hat = Ch * e_sel + Dh * u_row
-            xh_next = Ah * e_sel + Bh * u_row + L * ((C * x_sel + D * u_row) - y_hat)
-        y_row = C * x_sel + D * u_row
-        rows = [A * x_sel + B * u_row, xh_next]
-        states = (*model.states, *(f"{s}_{'bar' if current else 'hat'}" for s in model.states))
+            rows.append(Ah * e_sel + Bh * applied + L * (y_row - Ch * e_sel - Dh * applied))
+        states += tuple(f"{s}_{'bar' if current else 'hat'}" for s in model.states)
         law = law.replace("-K x", "-K x_hat") + (" with the current-form estimator in the loop" if current
                                                  else " with the estimator in the loop")
         gains += ", L"
-    else:
-        x_sel = sp.Matrix.hstack(sp.eye(n), sp.zeros(n, q))
-        q_sel = sp.Matrix.hstack(sp.zeros(q, n), sp.eye(q))
-        u_row = -K * x_sel - Ki * q_sel
-        y_row = C * x_sel + D * u_row
-        rows = [A * x_sel + B * u_row]
-        states = tuple(model.states)
+    if delay:
+        law += ", one sample of computation delay (u[k] applied at k+1)"
     if q:
         rows.append((q_sel + T * y_row) if discrete else y_row)  # q[k+1] = q[k] + T (y - r); q' = y - r
         states = (*states, *(f"q_{y}" for y in (model.outputs or ("y",))))
-    matrix = sp.Matrix.vstack(*rows)
-    size = matrix.rows
+    full = sp.Matrix.vstack(*rows)
+    matrix, y_full, y_row = full[:, :size], y_row, y_row[:, :size]
     if q:
         reference = sp.Matrix.vstack(sp.zeros(size - q, q), -T * sp.eye(q))
         feedthrough = sp.zeros(p, q)
     else:  # r enters through u = ... + N r (N at the design's nominal steady state)
-        reference = sp.Matrix.vstack(B, *([Bh] if design.estimator is not None else []))
-        feedthrough = D
+        reference, feedthrough = full[:, size:], y_full[:, size:]
     where = ""
     if discrete:
         from ..mathtext import math_text, number_text

@@ -122,21 +122,30 @@ def _poles(controller) -> np.ndarray:
     A, B, C, D = controller.A, controller.B, controller.C, controller.D
     K, Ki, L = controller.K, controller.Ki, controller.L
     discrete = bool(getattr(controller, "DISCRETE", False))
-    poles = []
-    if Ki is not None:
+    n, m = B.shape
+    Ap, Bp, Cp, Dp = A, B, C, D
+    if getattr(controller, "DELAY", False):  # the input of the previous sample is a state: [x; u[k-1]]
+        Ap = np.block([[A, B], [np.zeros((m, n + m))]])
+        Bp = np.vstack([np.zeros((n, m)), np.eye(m)])
+        Cp, Dp = np.hstack([C, D]), np.zeros_like(D)
+    if Ki is not None:  # the pair augmented with q[k+1] = q[k] + T (y - r), or q' = y - r
         p = Ki.shape[1]
-        h = controller.T if discrete else 1.0  # q[k+1] = q[k] + T (y - r), or q' = y - r
-        Aa = np.block([[A - B @ K, -B @ Ki], [h * (C - D @ K), (np.eye(p) if discrete else 0.0) - h * D @ Ki]])
-        poles.append(np.linalg.eigvals(Aa))
-    else:
-        poles.append(np.linalg.eigvals(A - B @ K))
+        h = controller.T if discrete else 1.0
+        Ap = np.block([[Ap, np.zeros((Ap.shape[0], p))], [h * Cp, np.eye(p) if discrete else np.zeros((p, p))]])
+        Bp = np.vstack([Bp, h * Dp])
+        K = np.hstack([K, Ki])
+    poles = [np.linalg.eigvals(Ap - Bp @ K)]
     if L is not None:
-        poles.append(np.linalg.eigvals(A - L @ C))
+        current = bool(getattr(controller, "CURRENT_FORM", False))
+        poles.append(np.linalg.eigvals(A - L @ C @ A if current else A - L @ C))
     poles = np.concatenate(poles).astype(complex)
     if discrete:
-        with np.errstate(divide="ignore"):
-            poles = np.log(poles) / controller.T  # a pole at z = 0 (deadbeat) maps to -inf: fastest
-        poles = np.where(np.isfinite(poles), poles, -1.0 / controller.T)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            poles = np.log(poles) / controller.T
+        # a pole at z = 0 (deadbeat; numerically a few 1e-6) maps to -inf; a sampled loop moves once per
+        # sample, so a pole faster than one e-fold per sample counts as -1/T
+        fast = ~np.isfinite(poles) | (poles.real < -1.0 / controller.T)
+        poles = np.where(fast, -1.0 / controller.T, poles)
     return poles
 
 
