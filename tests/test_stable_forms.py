@@ -113,3 +113,20 @@ def test_rewrite_keeps_the_value():
     assert new.has(ExpRemainder) and new.has(CosRemainder)
     for point in ({T: sp.Rational(3, 10), c: 2, m: 3, w: 5}, {T: sp.Rational(1, 1000), c: 1, m: 4, w: 40}):
         assert abs(sp.N(new.subs(point), 30) - sp.N(expr.subs(point), 30)) < 1e-25
+
+
+def test_check_passes_at_short_periods():
+    """symgain check on a 1 kHz stage with integral action (T a parameter down to 0.5 ms): the gains
+    are evaluated at 30 digits and the conditions in short-period form, so the check measures the
+    formulas (against scipy.signal.place_poles and the target), not the round-off of evaluating them."""
+    from symgain.analysis.check import check_design
+
+    text = EXAMPLE.read_text()
+    text = text.replace("range = [0.001, 0.01], nominal = 0.002", "range = [0.0005, 0.002], nominal = 0.001")
+    text = text.replace('[feedback]\ndamping = "0.8"\nnatural_frequency = "w"\n',
+                        '[integral]\npoles = ["-w", "-1.5*w", "-2*w"]\n').replace("[feedforward]\n", "")
+    design = derive(model_from_text(text))
+    assert design.integral is not None
+    report = check_design(design, n_points=8)
+    rows = report.points["integral"]
+    assert report.passed and all(r.status == "ok" for r in rows), [r.reason for r in rows]

@@ -13,6 +13,14 @@ parameter):
   with ``compute_delay`` the gains are checked on the pair with the delay
   states, [[Phi, Gamma], [0, 0]], [[0], [I]], built here from scipy's Phi, Gamma.
 
+The gains are evaluated by mpmath at 30 digits: at short sample periods the closed
+forms cancel to several orders in T, and a double-precision evaluation of the
+formula as written would blame the formula for the round-off. The conditions are
+judged in their short-period form (:func:`symgain.design.short_period.stable_condition`,
+positive factors such as T^3 removed) where the period is a parameter. What the
+emitted code computes in double and single precision is measured by the tests of
+the emitters.
+
 >>> import sympy as sp
 >>> from symgain.model import Model, Parameter, TargetSpec
 >>> from symgain.model.sampling_keys import Sampling
@@ -89,6 +97,62 @@ def _reference(part: str, Pd, Gd, C, D, roots, T: float, form: str, delay: bool 
         return scipy.signal.place_poles(Pa, Ga, roots, rtol=1e-13, maxiter=200).gain_matrix
 
 
+MPMATH_DIGITS = 30  # working precision of the gain evaluation
+
+
+def _precise(symbols, expr):
+    """A function of float arguments that evaluates ``expr`` by mpmath at MPMATH_DIGITS, as a numpy array."""
+    import mpmath
+
+    f = sp.lambdify(symbols, expr, modules="mpmath")
+
+    def call(*args):
+        with mpmath.workdps(MPMATH_DIGITS):
+            value = f(*(mpmath.mpf(float(a)) for a in args))
+            return np.array(value.tolist() if isinstance(value, mpmath.matrix) else value, dtype=complex)
+
+    return call
+
+
+def _failing(conditions, values, period) -> list[str]:
+    """holds_at on the conditions, each ``f != 0`` judged in its short-period form where T is a symbol."""
+    from ..design.short_period import stable_condition
+    from ..mathtext import condition_text
+
+    failed = []
+    for cond in conditions:
+        judged = cond
+        if isinstance(period, sp.Symbol) and isinstance(cond, sp.Ne):
+            judged = sp.Ne(stable_condition(cond.lhs - cond.rhs, period), 0)
+        if holds_at([judged], values):
+            failed.append(condition_text(cond))
+    return failed
+
+
+def _judged_conditions(design: Design):
+    """(period, extra values, {part: conditions}, plant conditions) used to judge validity at a point.
+
+    A fixed numeric period is judged through the symbolic-period twin of the design
+    (:func:`symgain.design.sampled.symbolic_period_twin`): its conditions hold T, so their
+    short-period forms see quantities of natural size, not ones that vanish with T.
+    """
+    from ..design.sampled import symbolic_period_twin
+
+    sampled = design.sampled
+    period = sp.sympify(sampled.period)
+    own = {part.part: part.valid_when for part in design.parts()}
+    if not period.is_number:
+        return period, {}, own, sampled.valid_when
+    found = symbolic_period_twin(design)
+    if found is None:
+        return period, {}, own, sampled.valid_when
+    twin, T, value = found
+    theirs = {part.part: part.valid_when for part in twin.parts()}
+    if set(theirs) != set(own):
+        return period, {}, own, sampled.valid_when
+    return T, {T: float(value)}, theirs, twin.sampled.valid_when
+
+
 def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tolerance: float = 1e-6) -> CheckReport:
     """Check the sampled plant and every part of a sampled-data design at sampled points."""
     model, sampled = design.model, design.sampled
@@ -96,6 +160,7 @@ def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tole
     delay = model.sampling.compute_delay
     symbols = [p.symbol for p in model.parameters]
     ev = lambda expr: sp.lambdify(symbols, expr, modules="numpy")  # noqa: E731
+    period, extra, judged, plant_conditions = _judged_conditions(design)
     f_A, f_B, f_T = ev(model.A), ev(model.B), ev(sampled.period)
     f_C = ev(model.C) if model.C is not None else None
     f_D = ev(model.D) if model.D is not None else None
@@ -111,8 +176,8 @@ def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tole
             poly = sp.Poly(part.target.polynomial, Z)
             unique = unique and sp.degree(sp.gcd(poly, poly.diff(Z)), Z) == 0
             target = ev(poly.all_coeffs())
-        f_gain[part.part] = (ev(full), target, unique)
-    f_K = ev(design.feedback.gain) if design.feedback is not None else None
+        f_gain[part.part] = (_precise(symbols, full), target, unique)
+    f_K = _precise(symbols, design.feedback.gain) if design.feedback is not None else None
     report = CheckReport(tolerance, seed)
     report.points["sampled_plant"] = []
     for part in parts:
@@ -125,7 +190,7 @@ def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tole
         C = np.array(f_C(*args), dtype=float) if f_C else None
         D = np.array(f_D(*args), dtype=float) if f_D else None
         ad, bd = scipy_sampled_plant(A, B, T, sampled.method)
-        failed = holds_at(sampled.valid_when, values)
+        failed = _failing(plant_conditions, {**values, **extra}, period)
         if failed:
             report.points["sampled_plant"].append(PointResult(idx, point, "skipped", None, None,
                                                               "fails " + ", ".join(failed)))
@@ -142,14 +207,16 @@ def check_sampled_design(design: Design, n_points: int = 20, seed: int = 0, tole
                 idx, point, "fail" if bad else "ok", err, None,
                 f"Phi, Gamma differ from scipy by {err:.1e}" if bad else ""))
         for part in parts:
-            report.points[part.part].append(_check_point(part, f_gain[part.part], f_K, idx, point, args, values,
-                                                         ad, bd, C, D, T, form, tolerance, delay))
+            report.points[part.part].append(_check_point(part, f_gain[part.part], f_K, idx, point, args,
+                                                         {**values, **extra}, ad, bd, C, D, T, form, tolerance,
+                                                         delay, period, judged[part.part]))
     return report
 
 
-def _check_point(part, fns, f_K, idx, point, args, values, ad, bd, C, D, T, form, tol, delay) -> PointResult:
+def _check_point(part, fns, f_K, idx, point, args, values, ad, bd, C, D, T, form, tol, delay,
+                 period, conditions) -> PointResult:
     f_full, f_target, unique = fns
-    failed = holds_at(part.valid_when, values)
+    failed = _failing(conditions, values, period)
     if failed:
         return PointResult(idx, point, "skipped", None, None, "fails " + ", ".join(failed))
     with np.errstate(all="ignore"):

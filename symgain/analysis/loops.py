@@ -58,6 +58,7 @@ class Loop:
     needs_reference_gain: bool  # True: scale r by N so that the steady state matches (no integrator)
     discrete: bool = False  # True: x_cl[k+1] = matrix x_cl[k] + reference r[k] (a sampled-data design)
     period: sp.Expr | None = None  # the sample period of a discrete loop
+    slots: tuple = ()  # with gain_slots=True: (symbol, part, gain symbol, row, col) of each gain entry
 
     def stable(self, eigenvalues) -> bool:
         """Asymptotically stable: real parts < 0, or inside the unit circle for a discrete loop."""
@@ -118,8 +119,11 @@ def inline_definitions(mat, part=None) -> sp.Matrix:
     return sp.Matrix(mat).xreplace(subs)
 
 
-def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
+def closed_loop(design: Design, estimates: dict | None = None, gain_slots: bool = False) -> Loop:
     """The loop of every designed part; the controller evaluated at ``estimates`` (symbol -> value).
+
+    ``gain_slots=True`` leaves every gain entry as a symbol (listed in ``Loop.slots``), for
+    numeric consumers that evaluate the gains themselves (in their short-period forms).
 
     A sampled-data design closes a loop in discrete time: x[k+1] = Phi x[k] + Gamma u[k],
     q[k+1] = q[k] + T (y - r), the estimator in its prediction or current form; the
@@ -141,17 +145,28 @@ def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
     D = sp.Matrix(model.D) if model.D is not None else sp.zeros(C.rows, m)
     p = C.rows
 
+    slots = []
+
     def at_hat(mat, part=None):
         return sp.Matrix(inline_definitions(mat, part)).xreplace(hat)
 
+    def gain(part, key="gain", symbol=None):
+        mat = part.gain if key == "gain" else part.extra[key]
+        if not gain_slots:
+            return at_hat(mat, part)
+        symbol = symbol or part.symbol
+        out = sp.Matrix(mat.rows, mat.cols, lambda i, j: sp.Dummy(f"{symbol}_{i}_{j}"))
+        slots.extend((out[i, j], part.part, symbol, i, j) for i in range(mat.rows) for j in range(mat.cols))
+        return out
+
     if kind == "integral":
-        K = at_hat(design.integral.gain, design.integral)
-        Ki = at_hat(design.integral.extra["integral_gain"], design.integral)
+        K = gain(design.integral)
+        Ki = gain(design.integral, "integral_gain", "Ki")
         gains = "K, Ki"
         law = ("integral action u = -K x - Ki q, q[k+1] = q[k] + T (y - r)" if discrete
                else "integral action u = -K x - Ki q, q' = y - r")
     else:
-        K, Ki = at_hat(design.feedback.gain, design.feedback), sp.zeros(m, 0)
+        K, Ki = gain(design.feedback), sp.zeros(m, 0)
         gains = "K"
         law = "state feedback u = -K x"
     q = Ki.cols
@@ -173,7 +188,7 @@ def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
     x_sel, v_sel, e_sel, q_sel, r_u = (select(k) for k in range(5))
     Kx, Kv = K[:, :n], K[:, n:]
     if estimated:
-        L = at_hat(design.estimator.gain, design.estimator)
+        L = gain(design.estimator)
         Ah, Bh, Ch, Dh = at_hat(A), at_hat(B), at_hat(C), at_hat(D)
     if current:  # x_hat[k] = x_bar[k] + L (y[k] - C x_bar[k]); the state holds x_bar
         x_hat = e_sel + L * (C * x_sel - Ch * e_sel)
@@ -214,4 +229,4 @@ def closed_loop(design: Design, estimates: dict | None = None) -> Loop:
         where = (f" at the sample period T = {number_text(float(T))} s" if T.is_number else
                  " at the sample period T" if str(T) == "T" else f" at the sample period T = {math_text(T)}")
     return Loop(f"{law} (gains {gains}){where}", matrix, reference, y_row, feedthrough, states, not q,
-                discrete=discrete, period=T if discrete else None)
+                discrete=discrete, period=T if discrete else None, slots=tuple(slots))

@@ -387,24 +387,41 @@ def ratio_ranges(analysis: MismatchAnalysis, *, progress=None, exact: bool = Tru
 
 
 class ClosedLoop:
-    """The loop of every designed part (see :mod:`symgain.loops`), compiled: true plant, estimated controller."""
+    """The loop of every designed part (see :mod:`symgain.analysis.loops`), compiled: true plant,
+    estimated controller. The gains are evaluated by the emitted module's arithmetic
+    (:class:`symgain.analysis.evaluate.GainEvaluator`: short-period forms at short sample periods)
+    at the estimated values, then put into the loop."""
 
     def __init__(self, design: Design):
+        from .evaluate import GainEvaluator
+
         model = design.model
         self.names = [p.name for p in model.parameters]
         true = [p.symbol for p in model.parameters]
         hats = [sp.Dummy(f"{p.name}_hat", **p.symbol.assumptions0) for p in model.parameters]
-        loop = closed_loop(design, dict(zip(true, hats)))
+        try:
+            self._gains = GainEvaluator(design)
+        except (DesignError, ModelError, TypeError, ValueError, KeyError):
+            self._gains = None  # a design the emitter cannot evaluate: the formulas go into the loop as written
+        loop = closed_loop(design, dict(zip(true, hats)), gain_slots=self._gains is not None)
         self.description = loop.description
         self.discrete = loop.discrete
         self.stable = loop.stable
-        self._M = lambdify(true + hats, loop.matrix, modules="numpy")
+        self._slot_index = []
+        if self._gains is not None:
+            where = {(e.part, e.symbol, e.row, e.col): k for k, e in enumerate(self._gains.entries)}
+            self._slot_index = [where[(part, symbol, i, j)] for _, part, symbol, i, j in loop.slots]
+        self._M = lambdify(true + hats + [s[0] for s in loop.slots], loop.matrix, modules="numpy")
 
     def __call__(self, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:
         true = [true_values[n] for n in self.names]
         est = [estimates.get(n, true_values[n]) for n in self.names]
+        gains = []
+        if self._gains is not None:
+            values, _ = self._gains(dict(zip(self.names, est)))
+            gains = [float(values[k]) for k in self._slot_index]
         with np.errstate(all="ignore"):
-            return np.real(np.array(self._M(*true, *est), dtype=complex))
+            return np.real(np.array(self._M(*true, *est, *gains), dtype=complex))
 
 
 def closed_loop_numeric(design: Design, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:

@@ -141,7 +141,7 @@ def relative_sensitivities(design: Design, values: dict[str, float] | None = Non
     from ..design.compact import numeric_function
 
     values = values or design.model.nominal_values()
-    subs = {p.symbol: sp.Float(values[p.name]) for p in design.model.parameters if p.name in values}
+    subs = {p.symbol: sp.Float(values[p.name], 40) for p in design.model.parameters if p.name in values}
     added = {}
     if table is None or any(p.definitions for p in design.parts()):
         table, added = sensitivity_table(design, with_definitions=True)

@@ -31,7 +31,7 @@ import sympy as sp
 from .numeric import lambdify
 
 from ..design import Design
-from ..errors import DesignError, Where
+from ..errors import DesignError, SymgainError, Where
 
 __all__ = ["StepRun", "step_responses", "corner_points", "loop_description"]
 
@@ -80,13 +80,26 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
                           "(add [integral] for a reference per output)", where=Where(model.source))
     true = [p.symbol for p in model.parameters]
     hats = [sp.Dummy(f"{p.name}_hat", **p.symbol.assumptions0) for p in model.parameters]
-    loop = closed_loop(loop_design, dict(zip(true, hats)))
-    f_loop = lambdify(true + hats, [loop.matrix, loop.reference[:, 0], loop.output[0, :],
-                                       loop.feedthrough[0, 0]], "numpy")
+    from .evaluate import GainEvaluator
+
+    try:  # the gains by the emitted module's arithmetic (short-period forms), put into the loop
+        gains = GainEvaluator(loop_design)
+    except (SymgainError, TypeError, ValueError, KeyError):
+        gains = None  # the formulas go into the loop as written
+    loop = closed_loop(loop_design, dict(zip(true, hats)), gain_slots=gains is not None)
+    slots = []
+    if gains is not None:
+        where = {(e.part, e.symbol, e.row, e.col): k for k, e in enumerate(gains.entries)}
+        slots = [where[(part, symbol, i, j)] for _, part, symbol, i, j in loop.slots]
+    f_loop = lambdify(true + hats + [s[0] for s in loop.slots],
+                      [loop.matrix, loop.reference[:, 0], loop.output[0, :], loop.feedthrough[0, 0]], "numpy")
     names = [p.name for p in model.parameters]
 
     def numeric(point, controller):
         vals = [point[n] for n in names] + [controller[n] for n in names]
+        if gains is not None:
+            values, _ = gains({n: controller[n] for n in names})
+            vals += [float(values[k]) for k in slots]
         with np.errstate(all="ignore"):
             M, R, Cm, Dm = f_loop(*vals)
         return (np.real(np.array(M, dtype=complex)), np.real(np.array(R, dtype=complex)).reshape(-1, 1),

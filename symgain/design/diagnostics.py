@@ -6,6 +6,10 @@
   otherwise by sampling the box (corners and random points; the warning
   says which);
 * a parameter whose name is also the name of a gain (K, L, N, Ki) or of s;
+* a sampled-data design whose printed gain
+  formulas, evaluated in double precision, lose more than half their digits at
+  nominal (the closed forms cancel at short periods; the emitted code, schedules
+  and loop analyses evaluate short-period forms instead);
 * gains at nominal above 1e6 times the plant's own scale
   ((max |A| + largest target pole) / max |B|; for L with C in place of B):
   an ill-conditioned design whose numbers no actuator can deliver.
@@ -157,6 +161,31 @@ def _scale_warnings(design: Design) -> list[str]:
     return out
 
 
+SHORT_PERIOD_LOSS = 1e-8  # relative error of a double evaluation of the gains above which the warning is given
+
+
+def _short_period_warning(design: Design) -> list[str]:
+    """Digits a double evaluation of the gains as printed loses at nominal (a sampled-data design)."""
+    from .short_period import printed_error
+
+    sampled = design.sampled
+    if sampled is None:
+        return []
+    model = design.model
+    values = [float(p.nominal) if p.nominal is not None else 1.0 for p in model.parameters]
+    worst = printed_error(design)
+    if not worst > SHORT_PERIOD_LOSS:
+        return []
+    digits = min(16, int(round(-np.log10(worst)))) if np.isfinite(worst) and worst > 0 else 0
+    single = "" if digits >= 8 else "; single precision keeps none"
+    nominal = {p.symbol: v for p, v in zip(model.parameters, values)}
+    period = float(sp.sympify(sampled.period).xreplace(nominal))
+    return [f"at the sample period T = {period:g} s the gain formulas as printed, evaluated in "
+            f"double precision, keep only about {digits} of 16 digits at nominal (their terms cancel at short "
+            f"periods{single}): use the emitted code, which evaluates them in short-period forms, not the "
+            "printed formulas"]
+
+
 def design_warnings(design: Design) -> list[str]:
     """Every warning for this design, one sentence each (empty when there is nothing to say)."""
     model = design.model
@@ -172,5 +201,6 @@ def design_warnings(design: Design) -> list[str]:
                 text = text if len(text) <= 60 else f"a condition of {sp.count_ops(cond)} operations"
                 out.append(f"{text} can fail inside the declared ranges (found by {method}); the formulas "
                            "do not hold there")
+    out += _short_period_warning(design)
     out += _scale_warnings(design)
     return out

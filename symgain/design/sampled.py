@@ -311,3 +311,31 @@ def derive_sampled(model: Model):
                                                   "and B by Gamma", *feedforward.notes))
     return Design(model=model, feedback=feedback, estimator=estimator, integral=integral,
                   feedforward=feedforward, sampled=sampled)
+
+
+def symbolic_period_twin(design):
+    """(twin design, T, value) for a design sampled at a fixed number T = value, else None.
+
+    The twin is the same design derived with the period a positive symbol: its closed forms
+    are those of the design with T = value put in, but they keep T, so that the short-period
+    forms (:mod:`symgain.design.short_period`) can be written for them; the emitters print
+    those with the number put back. (With the number in from the start the cancelling
+    Taylor terms can no longer be told apart from the other constants.)
+    """
+    sampled = getattr(design, "sampled", None)
+    if sampled is None or not sp.sympify(sampled.period).is_number:
+        return None
+    from ..errors import SymgainError
+    from ..model import Parameter
+
+    model = design.model
+    name = "T_period"
+    if name in model.symbols:
+        return None
+    period = Parameter.declare(name, sign="positive", role="design", meaning="sample period")
+    try:
+        twin = derive_sampled(replace(model, parameters=(*model.parameters, period),
+                                      sampling=replace(model.sampling, period=period.symbol)))
+    except (SymgainError, TypeError, ValueError, ZeroDivisionError):
+        return None  # the twin does not derive: the emitters print the design's own entries
+    return twin, period.symbol, sp.sympify(sampled.period)

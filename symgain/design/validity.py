@@ -55,7 +55,7 @@ def holds_at(conditions: Iterable[sp.Basic], values: dict[sp.Symbol, float], tol
     magnitude of the terms of ``f`` there, so that round-off zeros count as zero.
     """
     failed = []
-    values = {k: sp.Float(v) for k, v in values.items()}
+    values = {k: sp.Float(v, 40) for k, v in values.items()}
     for cond in conditions:
         if isinstance(cond, sp.Ne):
             f = cond.lhs - cond.rhs

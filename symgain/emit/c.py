@@ -77,7 +77,7 @@ class CPrinter(C99CodePrinter):
 
     @property
     def _single(self) -> bool:
-        return self._settings["type_aliases"].get(real) == float32
+        return self.type_aliases.get(real) == float32  # (the C printers take type_aliases out of the settings)
 
 
 def _printer(precision: str) -> CPrinter:

@@ -26,7 +26,7 @@ where ``|f| <= tol * (1 + |t_1| + ... + |t_k|)`` with ``t_i`` the terms of
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import sympy as sp
 
@@ -37,6 +37,8 @@ __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpression
            "mangle", "TOLERANCE", "range_macro", "range_test"]
 
 TOLERANCE = {"double": 1e-12, "single": 1e-5}
+TWIN_SIZE_LIMIT = 4000  # operations of the twin's gains above which the short-period rewrite is not tried
+TWIN_LOSS = 1e-10  # relative error of the printed gains at nominal above which a fixed period uses the twin
 
 PART_ORDER = ("feedback", "estimator", "integral", "feedforward")
 
@@ -58,24 +60,33 @@ class Function:
     branch: int | None = None  # the solution branch this function holds (several-input designs)
     infinite_ok: bool = False  # entries may be +-inf (absent input limits); NaN is still refused
     period: sp.Symbol | None = None  # sample period of a sampled-data design: entries printed in stable form
+    # a fixed numeric period: (T, value, entries, conditions) of the twin design with T symbolic
+    twin: tuple | None = None
 
     def printed(self) -> list:
         """The entries as the emitters print them: short-period stable forms when there is a period
-        (:mod:`symgain.emit.stable_forms`; the same values), otherwise the entries as designed."""
+        (:mod:`symgain.design.short_period`; the same values), otherwise the entries as designed.
+        A fixed numeric period uses the twin design's forms with the number put in."""
+        from ..design.short_period import stable_form
+
+        if self.twin is not None:
+            T, value, entries, _ = self.twin
+            return [stable_form(e, T).xreplace({T: value}) for e in entries]
         if self.period is None:
             return list(self.matrix)
-        from .stable_forms import stable_form
-
         return [stable_form(e, self.period) for e in self.matrix]
 
     def printed_conditions(self) -> list:
         """The f of each condition f != 0 as the emitters test it: at short periods in stable form with
         its positive factors (powers of T, ...) divided out (the same condition; the round-off zero
         test then sees a quantity of its natural size, not one that vanishes with T)."""
+        from ..design.short_period import stable_condition
+
+        if self.twin is not None:
+            T, value, _, conditions = self.twin
+            return [stable_condition(c, T).xreplace({T: value}) for c in conditions]
         if self.period is None:
             return list(self.conditions)
-        from .stable_forms import stable_condition
-
         return [stable_condition(c, self.period) for c in self.conditions]
 
     def checked_after(self) -> dict[int, list[int]]:
@@ -118,6 +129,7 @@ def design_functions(design: Design) -> list[Function]:
     params = [p.name for p in model.parameters]
     declared = {p.symbol for p in model.parameters}
     meanings = tuple((p.name, p.meaning, p.unit, p.range) for p in model.parameters)
+    twins = _twin_matrices(design)
     out: list[Function] = []
     taken: set[str] = set()
     for part in design.parts():
@@ -157,7 +169,61 @@ def design_functions(design: Design) -> list[Function]:
             out.append(Function(name, part.part, key, label, matrix, tuple(params) + tuple(map(str, free)),
                                 conditions, meanings + fm, definitions=definitions, nonnegative=nonnegative,
                                 branch=branch, period=None if definitions else sample_period(design)))
+            twin = None if definitions or free else _twin_of(twins, part.part, key, branch, matrix, model)
+            if twin is not None:  # the twin's conditions (the same formulas; T = value put in)
+                T, value, _, twin_conditions = twin
+                out[-1] = replace(out[-1], twin=twin, conditions=tuple(
+                    c.xreplace({T: value}) for c in twin_conditions))
     return out
+
+
+def _twin_matrices(design: Design):
+    """(T, value, {(part, key, branch): (matrix, conditions)}) of the symbolic-period twin, or None."""
+    from ..design.sampled import symbolic_period_twin
+    from ..design.short_period import printed_error
+
+    if getattr(design, "sampled", None) is None or not sp.sympify(design.sampled.period).is_number:
+        return None
+    if not printed_error(design) > TWIN_LOSS:
+        return None  # the formulas as printed keep their digits: no second derivation, no rewrite
+    found = symbolic_period_twin(design)
+    if found is None:
+        return None
+    twin, T, value = found
+    if sum(sp.count_ops(sp.Matrix(part.gain)) for part in twin.parts()) > TWIN_SIZE_LIMIT:
+        return None  # rewriting forms this large costs minutes: the entries are printed as designed
+    table = {}
+    for part in twin.parts():
+        shown = part.selected_branch or (1 if part.branches else None)
+        conditions = _split_conditions(part.valid_when)[0]
+        table[(part.part, "gain", shown)] = (part.gain, conditions)
+        for key, v in part.extra.items():
+            if key != "gain_symbols" and isinstance(v, sp.MatrixBase):
+                table[(part.part, key, shown)] = (v, conditions)
+    return T, value, table
+
+
+def _twin_of(twins, part: str, key: str, branch, matrix, model):
+    """The twin's (T, value, entries, conditions) for one function, if its entries agree with the design's
+    own at nominal (30 digits); None otherwise (the entries are then printed as designed)."""
+    if twins is None:
+        return None
+    T, value, table = twins
+    found = table.get((part, key, branch))
+    if found is None or sp.Matrix(found[0]).shape != matrix.shape:
+        return None
+    entries, twin_conditions = found
+    nominal = {p.symbol: sp.Float(p.nominal if p.nominal is not None else 1, 30) for p in model.parameters}
+    at = {**nominal, T: value}
+    try:
+        for mine, theirs in zip(list(matrix), list(entries)):
+            a = complex(sp.sympify(mine).xreplace(nominal).evalf(30))
+            b = complex(sp.sympify(theirs).xreplace(at).evalf(30))
+            if abs(a - b) > 1e-9 * max(1.0, abs(a)):
+                return None
+    except (TypeError, ValueError, ZeroDivisionError):
+        return None
+    return T, value, tuple(entries), tuple(twin_conditions)
 
 
 def discriminants(matrix, known=()) -> tuple:
