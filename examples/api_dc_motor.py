@@ -1,6 +1,6 @@
 """The telescope focus drive of dc_motor_position.toml, built in Python from sympy matrices.
 
-A brushed DC motor with winding inductance L drives the focuser (three states: angle, rate,
+A brushed DC motor with winding inductance L_a drives the focuser (three states: angle, rate,
 winding current; input: voltage). This script builds the model without any file, derives
 the position-loop gains, checks them against scipy and prints the JSON result.
 Invented machine, invented numbers. Run: python examples/api_dc_motor.py
@@ -11,7 +11,7 @@ from symgain import check_design, derive, design_to_json, model_from_matrices
 
 
 def build_model():
-    J, b, K, R, L, w = sp.symbols("J b K R L w", positive=True)
+    J, b, K, R, L, w = sp.symbols("J b K_t R L_a w", positive=True)
     A = sp.Matrix([[0, 1, 0],
                    [0, -b / J, K / J],
                    [0, -K / L, -R / L]])
@@ -22,9 +22,9 @@ def build_model():
         parameters={
             "J": {"sign": "positive", "range": [2e-6, 8e-6], "unit": "kg*m^2", "meaning": "rotor and gear inertia"},
             "b": {"sign": "nonnegative", "range": [1e-6, 5e-6], "unit": "N*m*s/rad", "meaning": "viscous friction"},
-            "K": {"sign": "positive", "range": [0.01, 0.03], "unit": "N*m/A", "meaning": "torque constant"},
+            "K_t": {"sign": "positive", "range": [0.01, 0.03], "unit": "N*m/A", "meaning": "torque constant"},
             "R": {"sign": "positive", "range": [2, 6], "unit": "ohm", "meaning": "winding resistance"},
-            "L": {"sign": "positive", "range": [0.5e-3, 2e-3], "unit": "H", "meaning": "winding inductance"},
+            "L_a": {"sign": "positive", "range": [0.5e-3, 2e-3], "unit": "H", "meaning": "winding inductance"},
             "w": {"sign": "positive", "range": [20, 80], "role": "design", "meaning": "closed-loop bandwidth"},
         },
         feedback={"poles": [-w, -2 * w, -3 * w]},

@@ -66,7 +66,7 @@ def test_dc_motor_against_franklin_powell_emami_naeini():
         A = [[0, 1, 0], [0, -b/J, K/J], [0, -K/L, -R/L]], B = [0, 0, 1/L]^T.
     The example file gives these matrices in LaTeX."""
     model = load_model(EXAMPLES / "dc_motor_position.toml")
-    J, b, K, R, L = (model.symbols[n] for n in ("J", "b", "K", "R", "L"))
+    J, b, K, R, L = (model.symbols[n] for n in ("J", "b", "K_t", "R", "L_a"))
     assert _same(model.A, [[0, 1, 0], [0, -b / J, K / J], [0, -K / L, -R / L]])
     assert _same(model.B, [[0], [0], [1 / L]])
 

@@ -137,12 +137,13 @@ def _judged_conditions(design: Design):
     short-period forms see quantities of natural size, not ones that vanish with T.
     """
     from ..design.sampled import symbolic_period_twin
+    from ..design.short_period import TWIN_LOSS, printed_error
 
     sampled = design.sampled
     period = sp.sympify(sampled.period)
     own = {part.part: part.valid_when for part in design.parts()}
-    if not period.is_number:
-        return period, {}, own, sampled.valid_when
+    if not period.is_number or not printed_error(design) > TWIN_LOSS:
+        return period, {}, own, sampled.valid_when  # (the printed forms keep their digits: judged as they are)
     found = symbolic_period_twin(design)
     if found is None:
         return period, {}, own, sampled.valid_when

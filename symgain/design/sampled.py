@@ -325,6 +325,20 @@ def symbolic_period_twin(design):
     sampled = getattr(design, "sampled", None)
     if sampled is None or not sp.sympify(sampled.period).is_number:
         return None
+    kept = _TWINS.get(id(design))
+    if kept is not None and kept[0] is design:  # one twin per design object (every emitter asks)
+        return kept[1]
+    found = _derive_twin(design, sampled)
+    if len(_TWINS) >= 8:
+        _TWINS.pop(next(iter(_TWINS)))
+    _TWINS[id(design)] = (design, found)
+    return found
+
+
+_TWINS: dict = {}  # id(design) -> (design, twin): the design is kept so that its id stays its own
+
+
+def _derive_twin(design, sampled):
     from ..errors import SymgainError
     from ..model import Parameter
 

@@ -35,8 +35,9 @@ import functools
 import sympy as sp
 
 __all__ = ["stable_form", "stable_condition", "ExpRemainder", "CosRemainder", "SinRemainder", "remainders",
-           "printed_error"]
+           "printed_error", "TWIN_LOSS"]
 
+TWIN_LOSS = 1e-10  # relative error of the printed gains at nominal above which a fixed period uses the twin
 MAX_ORDER = 6  # highest Taylor order tried before the expression is left as written
 
 
