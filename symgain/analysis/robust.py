@@ -407,7 +407,7 @@ class ClosedLoop:
         self.description = loop.description
         self.discrete = loop.discrete
         self.stable = loop.stable
-        self._slot_index = []
+        self._slot_index, self._cache = [], {}
         if self._gains is not None:
             where = {(e.part, e.symbol, e.row, e.col): k for k, e in enumerate(self._gains.entries)}
             self._slot_index = [where[(part, symbol, i, j)] for _, part, symbol, i, j in loop.slots]
@@ -417,11 +417,18 @@ class ClosedLoop:
         true = [true_values[n] for n in self.names]
         est = [estimates.get(n, true_values[n]) for n in self.names]
         gains = []
-        if self._gains is not None:
-            values, _ = self._gains(dict(zip(self.names, est)))
-            gains = [float(values[k]) for k in self._slot_index]
-        with np.errstate(all="ignore"):
-            return np.real(np.array(self._M(*true, *est, *gains), dtype=complex))
+        if self._gains is not None:  # the gains depend on the estimates only: kept per estimate
+            key = tuple(float(v) for v in est)
+            gains = self._cache.get(key)
+            if gains is None:
+                values, _ = self._gains(dict(zip(self.names, est)))
+                gains = [float(values[k]) for k in self._slot_index]
+                if len(self._cache) > 4096:
+                    self._cache.clear()
+                self._cache[key] = gains
+        with np.errstate(all="ignore"):  # complex arguments: sqrt of a negative discriminant stays finite
+            return np.real(np.array(self._M(*(complex(v) for v in true), *(complex(v) for v in est), *gains),
+                                    dtype=complex))
 
 
 def closed_loop_numeric(design: Design, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:
@@ -447,7 +454,10 @@ def cross_check(analysis: MismatchAnalysis, n_points: int = 200, seed: int = 0, 
         true = dict(values)
         for n in analysis.mismatched:
             true[n] = values[n] * ratios[n]
-        eig = np.linalg.eigvals(loop(true, values))
+        M = loop(true, values)
+        if not np.all(np.isfinite(M)):
+            continue  # the loop is not defined there (a gain or the plant is not finite)
+        eig = np.linalg.eigvals(M)
         worst = float(np.max(eig.real))
         args = list(analysis.substitutions(values, ratios).values())
         rh = all(float(np.real(f(*args))) > 0 for f in funcs)
@@ -477,5 +487,7 @@ def pole_migration(design: Design, name: str, count: int = 120) -> tuple[np.ndar
     poles = []
     for v in values:
         true = dict(nominal, **{name: float(v)})
-        poles.append(np.sort_complex(np.linalg.eigvals(loop(true, nominal))))
+        M = loop(true, nominal)
+        poles.append(np.sort_complex(np.linalg.eigvals(M)) if np.all(np.isfinite(M))
+                     else np.full(M.shape[0], np.nan + 0j))
     return values, np.array(poles)

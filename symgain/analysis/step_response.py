@@ -96,7 +96,7 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
     names = [p.name for p in model.parameters]
 
     def numeric(point, controller):
-        vals = [point[n] for n in names] + [controller[n] for n in names]
+        vals = [complex(point[n]) for n in names] + [complex(controller[n]) for n in names]  # (sqrt of D < 0)
         if gains is not None:
             values, _ = gains({n: controller[n] for n in names})
             vals += [float(values[k]) for k in slots]

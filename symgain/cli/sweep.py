@@ -255,8 +255,8 @@ def run_robust(args) -> int:
             print(f"  stable at every one of {rr.grid_points} grid points over the declared ranges "
                   f"(estimate {name}_hat included): {_interval_text(*rr.over_ranges, ratio)}")
         else:
-            print(f"  some of the {rr.grid_points} grid points over the declared ranges are unstable even "
-                  "with a matched controller")
+            print(f"  some of the {rr.grid_points} grid points over the declared ranges admit no stable ratio "
+                  "(unstable even with a matched controller, or outside where the formulas hold)")
     if closed_form:
         print(f"eigenvalue cross-check at {counts['points']} sampled points (ratios 0.05..20): "
               f"{counts['agree']} agree, {counts['disagree']} disagree, {counts['marginal']} on the boundary")

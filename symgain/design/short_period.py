@@ -219,6 +219,20 @@ def printed_error(design) -> float:
     >>> printed_error(derive(model)) < 1e-12   # state feedback cancels little; integral action far more
     True
     """
+    kept = _ERRORS.get(id(design))
+    if kept is not None and kept[0] is design:  # measured once per design object
+        return kept[1]
+    worst = _printed_error(design)
+    if len(_ERRORS) >= 8:
+        _ERRORS.pop(next(iter(_ERRORS)))
+    _ERRORS[id(design)] = (design, worst)
+    return worst
+
+
+_ERRORS: dict = {}  # id(design) -> (design, printed_error)
+
+
+def _printed_error(design) -> float:
     import mpmath
     import numpy as np
 
