@@ -17,6 +17,8 @@ from pathlib import Path
 
 import pytest
 
+from test_discriminant import MSD
+
 from symgain.cli import main
 from symgain.model.toml_file import load_model
 
@@ -170,22 +172,8 @@ z_poles = ["0.2", "0.3"]
 [input_limits]
 F = { min = "-50", max = "50" }
 ''',
-    "sampled_discriminant": '''
-name = "sampled_discriminant"
-[parameters]
-m = { sign = "positive", range = [1, 2], nominal = 1.5 }
-c = { sign = "positive", range = [1, 6], nominal = 5 }
-k = { sign = "positive", range = [2, 4], nominal = 3 }
-[plant]
-states = ["x", "v"]
-inputs = ["F"]
-A = [["0", "1"], ["-k/m", "-c/m"]]
-B = [["0"], ["1/m"]]
-[discrete]
-sample_time = "0.01"
-[feedback]
-z_poles = ["0.9", "0.95"]
-''',
+    # a discriminant under sqrt that changes sign inside the ranges (tests/test_discriminant.py)
+    "sampled_discriminant": MSD.replace('name = "msd"', 'name = "sampled_discriminant"'),
     "constant_by_value": '''
 name = "constant_by_value"
 [parameters]
