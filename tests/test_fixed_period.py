@@ -106,3 +106,15 @@ def test_matched_loop_has_the_target_poles(stage):
 def test_the_printed_formulas_are_flagged(stage):
     said = [w for w in design_warnings(stage) if "sample period" in w]
     assert said and "keep only about" in said[0]
+
+
+def test_without_a_rewrite_the_warning_says_so(monkeypatch):
+    """A twin above the size limit is not rewritten: the emitted entries stay as designed and the
+    warning no longer points to the emitted code (limit lowered here to force the case)."""
+    import symgain.design.short_period as short_period
+
+    monkeypatch.setattr(short_period, "TWIN_SIZE_LIMIT", 10)
+    design = derive(model_from_text(STAGE))
+    assert all(fn.twin is None for fn in design_functions(design))
+    said = [w for w in design_warnings(design) if "sample period" in w]
+    assert said and "cannot rewrite" in said[0]

@@ -166,7 +166,7 @@ SHORT_PERIOD_LOSS = 1e-8  # relative error of a double evaluation of the gains a
 
 def _short_period_warning(design: Design) -> list[str]:
     """Digits a double evaluation of the gains as printed loses at nominal (a sampled-data design)."""
-    from .short_period import printed_error
+    from .short_period import printed_error, rewritable
 
     sampled = design.sampled
     if sampled is None:
@@ -180,10 +180,14 @@ def _short_period_warning(design: Design) -> list[str]:
     single = "" if digits >= 8 else "; single precision keeps none"
     nominal = {p.symbol: v for p, v in zip(model.parameters, values)}
     period = float(sp.sympify(sampled.period).xreplace(nominal))
-    return [f"at the sample period T = {period:g} s the gain formulas as printed, evaluated in "
-            f"double precision, keep only about {digits} of 16 digits at nominal (their terms cancel at short "
-            f"periods{single}): use the emitted code, which evaluates them in short-period forms, not the "
-            "printed formulas"]
+    said = (f"at the sample period T = {period:g} s the gain formulas as printed, evaluated in double "
+            f"precision, keep only about {digits} of 16 digits at nominal (their terms cancel at short periods"
+            f"{single})")
+    if rewritable(design):
+        return [said + ": use the emitted code, which evaluates them in short-period forms, not the printed "
+                "formulas"]
+    return [said + "; the emitted code cannot rewrite them here (the forms are too large) and keeps them as "
+            "written: check its numbers before use, or shorten the model"]
 
 
 def design_warnings(design: Design) -> list[str]:

@@ -35,8 +35,9 @@ import functools
 import sympy as sp
 
 __all__ = ["stable_form", "stable_condition", "ExpRemainder", "CosRemainder", "SinRemainder", "remainders",
-           "printed_error", "TWIN_LOSS"]
+           "printed_error", "TWIN_LOSS", "TWIN_SIZE_LIMIT", "rewritable"]
 
+TWIN_SIZE_LIMIT = 4000  # operations of the twin's gains above which the short-period rewrite is not tried
 TWIN_LOSS = 1e-10  # relative error of the printed gains at nominal above which a fixed period uses the twin
 MAX_ORDER = 6  # highest Taylor order tried before the expression is left as written
 
@@ -258,3 +259,19 @@ def _printed_error(design) -> float:
         if scale > 0:
             worst = max(worst, float(np.max(np.abs(double - exact))) / scale)
     return worst
+
+
+def rewritable(design) -> bool:
+    """Whether the emitters can print this sampled-data design's gains in short-period forms: a
+    symbolic period, or a fixed one whose symbolic-period twin derives and stays under
+    TWIN_SIZE_LIMIT operations."""
+    from .sampled import symbolic_period_twin
+
+    sampled = getattr(design, "sampled", None)
+    if sampled is None:
+        return False
+    if not sp.sympify(sampled.period).is_number:
+        return True
+    found = symbolic_period_twin(design)
+    return found is not None and sum(sp.count_ops(sp.Matrix(part.gain)) for part in found[0].parts()) \
+        <= TWIN_SIZE_LIMIT

@@ -37,7 +37,6 @@ __all__ = ["Function", "design_functions", "failure_rule", "shared_subexpression
            "mangle", "TOLERANCE", "range_macro", "range_test"]
 
 TOLERANCE = {"double": 1e-12, "single": 1e-5}
-TWIN_SIZE_LIMIT = 4000  # operations of the twin's gains above which the short-period rewrite is not tried
 
 PART_ORDER = ("feedback", "estimator", "integral", "feedforward")
 
@@ -179,7 +178,7 @@ def design_functions(design: Design) -> list[Function]:
 def _twin_matrices(design: Design):
     """(T, value, {(part, key, branch): (matrix, conditions)}) of the symbolic-period twin, or None."""
     from ..design.sampled import symbolic_period_twin
-    from ..design.short_period import TWIN_LOSS, printed_error
+    from ..design.short_period import TWIN_LOSS, TWIN_SIZE_LIMIT, printed_error
 
     if getattr(design, "sampled", None) is None or not sp.sympify(design.sampled.period).is_number:
         return None
