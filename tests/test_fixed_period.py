@@ -18,6 +18,7 @@ import pytest
 import sympy as sp
 
 from emit_helpers import reference, relative_error
+from test_loops import STAGE as PLANT
 from symgain.analysis.check import check_design
 from symgain.analysis.robust import ClosedLoop
 from symgain.design import derive
@@ -26,17 +27,7 @@ from symgain.emit.common import design_functions
 from symgain.emit.python import python_module
 from symgain.model import model_from_text
 
-STAGE = """
-name = "fixed_period_stage"
-[parameters]
-m = { sign = "positive", range = [2, 6], nominal = 4 }
-c = { sign = "positive", range = [1, 8], nominal = 3 }
-[plant]
-states = ["x", "v"]
-inputs = ["F"]
-outputs = ["x"]
-A = [["0", "1"], ["0", "-c/m"]]
-B = [["0"], ["1/m"]]
+STAGE = PLANT.replace('name = "stage"', 'name = "fixed_period_stage"') + """
 [discrete]
 sample_time = "0.001"
 [integral]

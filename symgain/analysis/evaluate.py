@@ -145,6 +145,12 @@ class GainEvaluator:
         gains = np.moveaxis(np.concatenate(blocks, axis=-1), -1, 0)
         return gains, np.isfinite(gains).all(axis=0)
 
+    def slot_indices(self, slots) -> list[int]:
+        """The row of each loop gain slot ``(symbol, part, gain symbol, row, col)`` in this evaluator's output
+        (:func:`symgain.analysis.loops.closed_loop` with ``gain_slots=True``)."""
+        where = {(e.part, e.symbol, e.row, e.col): k for k, e in enumerate(self.entries)}
+        return [where[(part, symbol, i, j)] for _, part, symbol, i, j in slots]
+
     def failed_conditions(self, point: dict) -> list[str]:
         """The conditions that fail at one point, as text (for the table's reason column)."""
         args = self._args(point)

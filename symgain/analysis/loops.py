@@ -215,13 +215,13 @@ def closed_loop(design: Design, estimates: dict | None = None, gain_slots: bool 
     if q:
         rows.append((q_sel + T * y_row) if discrete else y_row)  # q[k+1] = q[k] + T (y - r); q' = y - r
         states = (*states, *(f"q_{y}" for y in (model.outputs or ("y",))))
-    full = sp.Matrix.vstack(*rows)
-    matrix, y_full, y_row = full[:, :size], y_row, y_row[:, :size]
+    full = sp.Matrix.vstack(*rows)  # the last m columns: what each row receives from N r
     if q:
         reference = sp.Matrix.vstack(sp.zeros(size - q, q), -T * sp.eye(q))
         feedthrough = sp.zeros(p, q)
     else:  # r enters through u = ... + N r (N at the design's nominal steady state)
-        reference, feedthrough = full[:, size:], y_full[:, size:]
+        reference, feedthrough = full[:, size:], y_row[:, size:]
+    matrix, y_row = full[:, :size], y_row[:, :size]
     where = ""
     if discrete:
         from ..mathtext import math_text, number_text

@@ -409,8 +409,7 @@ class ClosedLoop:
         self.stable = loop.stable
         self._slot_index, self._cache = [], {}
         if self._gains is not None:
-            where = {(e.part, e.symbol, e.row, e.col): k for k, e in enumerate(self._gains.entries)}
-            self._slot_index = [where[(part, symbol, i, j)] for _, part, symbol, i, j in loop.slots]
+            self._slot_index = self._gains.slot_indices(loop.slots)
         self._M = lambdify(true + hats + [s[0] for s in loop.slots], loop.matrix, modules="numpy")
 
     def __call__(self, true_values: dict[str, float], estimates: dict[str, float]) -> np.ndarray:

@@ -87,10 +87,7 @@ def step_responses(design: Design, gains: str = "fixed", n_samples: int = 800, p
     except (SymgainError, TypeError, ValueError, KeyError):
         gains = None  # the formulas go into the loop as written
     loop = closed_loop(loop_design, dict(zip(true, hats)), gain_slots=gains is not None)
-    slots = []
-    if gains is not None:
-        where = {(e.part, e.symbol, e.row, e.col): k for k, e in enumerate(gains.entries)}
-        slots = [where[(part, symbol, i, j)] for _, part, symbol, i, j in loop.slots]
+    slots = gains.slot_indices(loop.slots) if gains is not None else []
     f_loop = lambdify(true + hats + [s[0] for s in loop.slots],
                       [loop.matrix, loop.reference[:, 0], loop.output[0, :], loop.feedthrough[0, 0]], "numpy")
     names = [p.name for p in model.parameters]
